@@ -1,0 +1,3 @@
+# SPDX-License-Identifier: Apache-2.0
+# Copyright 2026 corridor_pid contributors
+"""ros."""
