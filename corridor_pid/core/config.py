@@ -48,9 +48,10 @@ class IntegralSettings:
 
 @dataclass(frozen=True)
 class DerivativeSettings:
-    """D term source ('measurement' | 'error') and filter_time [s]."""
+    """D term: source ('measurement' | 'error'), rate_from, filter_time [s]."""
 
     source: str
+    rate_from: str
     filter_time: float
 
 

@@ -66,6 +66,10 @@ PARAMS: tuple[ParamSpec, ...] = (
               'What the D term differentiates: measurement (the measured part of e, no kick '
               'on a target_offset change) or error.', True,
               choices=('measurement', 'error')),
+    ParamSpec('derivative.rate_from', STRING, 'difference', '',
+              'How the rate is obtained: difference of successive poses, or odometry '
+              '(speed and yaw rate of an Odometry pose, when present).', True,
+              choices=('difference', 'odometry')),
     ParamSpec('derivative.filter_time', DOUBLE, 0.05, 's',
               'Time constant of the first-order filter on the D term (0 = unfiltered).',
               True, 0.0, 10.0),

@@ -1,0 +1,409 @@
+# SPDX-License-Identifier: Apache-2.0
+# Copyright 2026 corridor_pid contributors
+"""The corridor-centring controller: one ``step`` shared by node, simulator, replay and tuner.
+
+Per accepted pose (header stamp ``stamp``, node clock ``t``)::
+
+    y, theta, kappa, s = course.project(pose)            # y positive left, REP 103
+    e      = -((y - target_offset) + L * sin(theta))     # L = lookahead [m]
+    steer  = trim + atan(wheelbase * kappa(s + L))       # feedforward (optional)
+             + P + I + D + blend                          # see corridor_pid.core.pid
+    steer  -> clamp to +/-steering.max_angle -> slew at most steering.max_rate
+    speed  = min(cruise, max) / (1 + |e| / slowdown_error),
+             <= sqrt(max_lateral_accel * wheelbase / |tan(steer)|),
+             slewed by max_accel / max_decel, within [0, speed.max]
+
+States: disabled -> waiting -> tracking -> stopped (watchdog) -> tracking; finished past the
+end of the course. While not tracking the speed ramps to 0 at ``speed.max_decel``, the
+steering returns to trim within its rate limit and the integrator is held (and reset when
+tracking resumes).
+"""
+
+from __future__ import annotations
+
+import enum
+import math
+from typing import NamedTuple
+
+from corridor_pid.core.config import Config, live_change_names
+from corridor_pid.core.course import Course
+from corridor_pid.core.errors import ConfigError
+from corridor_pid.core.pid import Integrator, RateFilter, scheduled_gains
+from corridor_pid.core.smoothing import AlphaBeta
+
+__all__ = ['Controller', 'PoseSample', 'State', 'StepResult']
+
+_isfinite = math.isfinite
+
+
+class State(enum.Enum):
+    """Controller state (value: the name shown in diagnostics)."""
+
+    DISABLED = 'disabled'
+    WAITING = 'waiting'
+    TRACKING = 'tracking'
+    STOPPED = 'stopped'
+    FINISHED = 'finished'
+
+
+class PoseSample(NamedTuple):
+    """A pose in the course frame: stamp [s], x, y [m], yaw [rad]; optional speed [m/s],
+    yaw_rate [rad/s]."""
+
+    stamp: float
+    x: float
+    y: float
+    yaw: float
+    frame_id: str = ''
+    speed: float | None = None
+    yaw_rate: float | None = None
+
+
+class StepResult(NamedTuple):
+    """The command and everything that went into it (for diagnostics and logs)."""
+
+    steering: float
+    """Limited steering angle [rad]."""
+    speed: float
+    """Limited speed [m/s]."""
+    state: State
+    computed: bool
+    """A new control was computed from a pose in this step."""
+    accepted: bool
+    """The sample of this step was accepted."""
+    error: float
+    """Lateral error e [m]."""
+    error_rate: float
+    """Filtered rate of the differentiated signal [m/s]."""
+    p: float
+    i: float
+    d: float
+    feedforward: float
+    blend: float
+    """Bumpless-retune offset [rad]."""
+    unclamped: float
+    """trim + feedforward + P + I + D + blend, before any limit [rad]."""
+    angle_saturated: bool
+    rate_saturated: bool
+    lateral: float
+    """y [m], positive left of the centreline."""
+    heading: float
+    """theta [rad], heading error."""
+    curvature: float
+    progress: float
+    kp: float
+    ki: float
+    kd: float
+    rejected: int
+    watchdog_stops: int
+
+
+class Controller:
+    """Steering and speed controller; value in, value out, no ROS."""
+
+    def __init__(self, config: Config, enabled: bool = False) -> None:
+        """Create the controller in ``waiting`` (enabled) or ``disabled``."""
+        self._config = config
+        self._course = Course(config.course.xy())
+        self.state = State.WAITING if enabled else State.DISABLED
+        self._integrator = Integrator()
+        self._rate = RateFilter()
+        self._smooth_y = AlphaBeta()
+        self._smooth_th = AlphaBeta()
+        self.rejected = 0
+        self.watchdog_stops = 0
+        self._last_stamp: float | None = None
+        self._t_accept = 0.0
+        self._recovery = 0
+        self._t_out: float | None = None
+        self._steer = config.steering.trim
+        self._speed = 0.0
+        self._blend = 0.0
+        self._excess = 0.0
+        self._prev_stamp: float | None = None
+        self._last: StepResult | None = None
+        self._y = 0.0
+        self._th = 0.0
+        self._s = 0.0
+        self._kappa = 0.0
+
+    # -- public API ---------------------------------------------------------------------
+
+    @property
+    def config(self) -> Config:
+        """The configuration in force."""
+        return self._config
+
+    @property
+    def course(self) -> Course:
+        """The course geometry."""
+        return self._course
+
+    def reset(self) -> None:
+        """Forget the control history (integrator, filters, blend); keep counters."""
+        self._integrator.value = 0.0
+        self._rate.reset()
+        self._smooth_y.reset()
+        self._smooth_th.reset()
+        self._blend = 0.0
+        self._excess = 0.0
+        self._prev_stamp = None
+        self._course.reset_hint()
+
+    def enable(self, on: bool, t: float) -> None:
+        """Enable (-> waiting) or disable (-> disabled) the controller at node time ``t``."""
+        if on and self.state == State.DISABLED:
+            self.reset()
+            self._recovery = 0
+            self.state = State.WAITING
+        elif not on:
+            self.state = State.DISABLED
+
+    def retune(self, new: Config, t: float = 0.0) -> None:
+        """Apply a validated configuration without stepping the unclamped output.
+
+        Raises:
+            ConfigError: when a parameter that is not live would change.
+
+        """
+        _, fixed = live_change_names(self._config, new)
+        if fixed:
+            name = sorted(fixed)[0]
+            raise ConfigError(f'{name}: cannot change while running (read-only)')
+        old = self._config
+        if self._last is not None and self._prev_stamp is not None:
+            before = self._unclamped(old)
+            self._config = new
+            after = self._unclamped(new)
+            delta = before - after
+            ki_new = scheduled_gains(new.gains, self._speed)[1]
+            if ki_new <= 0.0 and self._integrator.value != 0.0:
+                delta += self._integrator.value
+                self._integrator.value = 0.0
+            elif ki_new > 0.0:
+                bound = new.integral.bound
+                target = self._integrator.value + delta
+                absorbed = max(-bound, min(bound, target))
+                delta = target - absorbed
+                self._integrator.value = absorbed
+            self._blend += delta
+        self._config = new
+
+    def step(self, sample: PoseSample | None, t: float) -> StepResult:
+        """Return the command at node time ``t`` [s] for ``sample`` (None on a timer tick)."""
+        cfg = self._config
+        h_out = 0.0 if self._t_out is None else t - self._t_out
+        if h_out < 0.0:
+            h_out = 0.0
+        self._t_out = t
+        accepted = False
+        if sample is not None:
+            accepted = self._accept(sample, cfg)
+        state = self.state
+        if state == State.TRACKING and t - self._t_accept > cfg.watchdog.timeout:
+            self.state = state = State.STOPPED
+            self.watchdog_stops += 1
+            self._recovery = 0
+        if accepted:
+            self._t_accept = t
+            if state == State.WAITING:
+                self.state = state = State.TRACKING
+                self.reset()
+            elif state == State.STOPPED:
+                self._recovery += 1
+                if self._recovery >= cfg.watchdog.recovery_count:
+                    self.state = state = State.TRACKING
+                    self.reset()
+        if state == State.TRACKING and accepted and sample is not None:
+            return self._control(sample, t, h_out, cfg)
+        return self._idle(h_out, cfg, accepted)
+
+    # -- internals ----------------------------------------------------------------------
+
+    def _accept(self, sample: PoseSample, cfg: Config) -> bool:
+        """Return whether ``sample`` is accepted; handle a large backwards stamp jump."""
+        stamp = sample.stamp
+        if not (_isfinite(stamp) and _isfinite(sample.x) and _isfinite(sample.y)
+                and _isfinite(sample.yaw)) or (
+                sample.speed is not None and not _isfinite(sample.speed)) or (
+                sample.yaw_rate is not None and not _isfinite(sample.yaw_rate)):
+            self.rejected += 1
+            return False
+        if cfg.pose_frame and sample.frame_id != cfg.pose_frame:
+            self.rejected += 1
+            return False
+        last = self._last_stamp
+        if last is not None and stamp <= last:
+            if last - stamp > cfg.watchdog.timeout:
+                # Clock reset or bag loop: start over from this stamp.
+                self._last_stamp = stamp
+                self.reset()
+                if self.state != State.DISABLED:
+                    self.state = State.WAITING
+                return False
+            self.rejected += 1
+            return False
+        self._last_stamp = stamp
+        return True
+
+    def _unclamped(self, cfg: Config) -> float:
+        """Return the unclamped output the last state gives under ``cfg`` [rad]."""
+        kp, _, kd = scheduled_gains(cfg.gains, self._speed)
+        e = -((self._y - cfg.target_offset) + cfg.lookahead * math.sin(self._th))
+        ff = self._feedforward(cfg, self._s)
+        return (cfg.steering.trim + ff + kp * e + self._integrator.value
+                + kd * self._rate.value + self._blend)
+
+    def _feedforward(self, cfg: Config, s: float) -> float:
+        if not cfg.feedforward.enabled or self._course.straight:
+            return 0.0
+        return math.atan(cfg.vehicle.wheelbase * self._course.curvature_at(s + cfg.lookahead))
+
+    def _measured(self, cfg: Config, y: float, th: float, offset: float) -> float:
+        if cfg.derivative.source == 'error':
+            return -((y - offset) + cfg.lookahead * math.sin(th))
+        return -(y + cfg.lookahead * math.sin(th))
+
+    def _control(self, sample: PoseSample, t: float, h_out: float, cfg: Config) -> StepResult:
+        prev = self._prev_stamp
+        h = 0.0 if prev is None else sample.stamp - prev
+        self._prev_stamp = sample.stamp
+        x, yy, yaw = sample.x, sample.y, sample.yaw
+        vehicle = cfg.vehicle
+        if cfg.delay_compensation.enabled:
+            age = min(max(t - sample.stamp, 0.0), cfg.delay_compensation.max_age)
+            if age > 0.0:
+                v = self._speed if sample.speed is None else sample.speed
+                x, yy, yaw = _predicted_pose(x, yy, yaw, v, self._steer,
+                                             vehicle.wheelbase, age)
+        proj = self._course.project(x, yy, yaw)
+        y, th = proj.lateral, proj.heading
+        if cfg.smoothing.enabled:
+            a, b = cfg.smoothing.alpha, cfg.smoothing.beta
+            y = self._smooth_y.update(y, h, a, b)
+            th = self._smooth_th.update(th, h, a, b)
+        self._y, self._th, self._s, self._kappa = y, th, proj.progress, proj.curvature
+        speed_now = self._speed if sample.speed is None else abs(sample.speed)
+        kp, ki, kd = scheduled_gains(cfg.gains, speed_now)
+        offset = cfg.target_offset
+        e = -((y - offset) + cfg.lookahead * math.sin(th))
+        # D term on the measured part of e; the previous signal is re-expressed with the
+        # present lookahead so a live lookahead change gives no kick.
+        rate_filter = self._rate
+        ftime = cfg.derivative.filter_time
+        signal = self._measured(cfg, y, th, offset)
+        if (cfg.derivative.rate_from == 'odometry' and sample.speed is not None
+                and sample.yaw_rate is not None):
+            rate_filter.last, rate_filter.primed = signal, True
+            rate = rate_filter.update_rate(
+                _error_rate(sample.speed, sample.yaw_rate, y, th, proj.curvature,
+                            cfg.lookahead), h, ftime)
+        else:
+            rate = rate_filter.update(signal, h, ftime)
+        d = kd * rate
+        integ = self._integrator.update(ki, e, h, self._excess, cfg.integral)
+        if h > 0.0 and self._blend != 0.0:
+            self._blend *= math.exp(-h / cfg.retune.blend_time)
+            if abs(self._blend) < 1e-12:
+                self._blend = 0.0
+        p = kp * e
+        ff = self._feedforward(cfg, proj.progress)
+        steering = cfg.steering
+        u = steering.trim + ff + p + integ + d + self._blend
+        steer, angle_sat, rate_sat = self._limited_steer(u, h_out, cfg)
+        self._excess = steer - u if (angle_sat or rate_sat) else 0.0
+        speed = self._limited_speed(self._target_speed(cfg, e, steer), h_out, cfg)
+        if not self._course.straight and proj.progress > self._course.length:
+            self.state = State.FINISHED
+        result = StepResult(
+            steer, speed, self.state, True, True, e, rate, p, integ, d, ff, self._blend, u,
+            angle_sat, rate_sat, y, th, proj.curvature, proj.progress, kp, ki, kd,
+            self.rejected, self.watchdog_stops)
+        self._last = result
+        return result
+
+    def _idle(self, h_out: float, cfg: Config, accepted: bool) -> StepResult:
+        """Return the command while not tracking (or on a timer tick while tracking)."""
+        last = self._last
+        if self.state == State.TRACKING and last is not None:
+            return last._replace(computed=False, accepted=accepted, rejected=self.rejected,
+                                 watchdog_stops=self.watchdog_stops)
+        trim = cfg.steering.trim
+        steer, _, rate_sat = self._limited_steer(trim, h_out, cfg)
+        speed = self._limited_speed(0.0, h_out, cfg)
+        kp, ki, kd = scheduled_gains(cfg.gains, self._speed)
+        result = StepResult(
+            steer, speed, self.state, False, accepted,
+            0.0 if last is None else last.error, 0.0, 0.0, self._integrator.value, 0.0, 0.0,
+            self._blend, trim, False, rate_sat, self._y, self._th, self._kappa, self._s,
+            kp, ki, kd, self.rejected, self.watchdog_stops)
+        return result
+
+    def _limited_steer(self, u: float, h: float, cfg: Config) -> tuple[float, bool, bool]:
+        """Return (steering [rad], angle-limited, rate-limited) for the wanted ``u``."""
+        lim = cfg.steering.max_angle
+        angle_sat = False
+        wanted = u
+        if wanted > lim:
+            wanted, angle_sat = lim, True
+        elif wanted < -lim:
+            wanted, angle_sat = -lim, True
+        step = cfg.steering.max_rate * h
+        prev = self._steer
+        rate_sat = False
+        if wanted > prev + step:
+            wanted, rate_sat = prev + step, True
+        elif wanted < prev - step:
+            wanted, rate_sat = prev - step, True
+        self._steer = wanted
+        return wanted, angle_sat, rate_sat
+
+    def _target_speed(self, cfg: Config, e: float, steer: float) -> float:
+        sp = cfg.speed
+        target = min(sp.cruise, sp.max)
+        if sp.slowdown_error > 0.0:
+            target /= 1.0 + abs(e) / sp.slowdown_error
+        tan_s = abs(math.tan(steer))
+        if tan_s > 1e-9:
+            limit = math.sqrt(sp.max_lateral_accel * cfg.vehicle.wheelbase / tan_s)
+            if limit < target:
+                target = limit
+        return target
+
+    def _limited_speed(self, target: float, h: float, cfg: Config) -> float:
+        sp = cfg.speed
+        prev = self._speed
+        up, down = sp.max_accel * h, sp.max_decel * h
+        if target > prev + up:
+            target = prev + up
+        elif target < prev - down:
+            target = prev - down
+        if target > sp.max:
+            target = sp.max
+        if target < 0.0:
+            target = 0.0
+        self._speed = target
+        return target
+
+
+def _predicted_pose(x: float, y: float, yaw: float, v: float, steer: float,
+                    wheelbase: float, age: float) -> tuple[float, float, float]:
+    """Return the pose ``age`` [s] later under the kinematic bicycle at constant inputs."""
+    w = v * math.tan(steer) / wheelbase
+    if abs(w) < 1e-9:
+        return x + v * age * math.cos(yaw), y + v * age * math.sin(yaw), yaw
+    yaw2 = yaw + w * age
+    r = v / w
+    return x + r * (math.sin(yaw2) - math.sin(yaw)), y - r * (math.cos(yaw2) - math.cos(yaw)), yaw2
+
+
+def _error_rate(v: float, yaw_rate: float, y: float, th: float, kappa: float,
+                lookahead: float) -> float:
+    """Return d/dt of -(y + L sin(theta)) from speed [m/s] and yaw rate [rad/s] (m/s).
+
+    Frenet kinematics: dy/dt = v sin(theta), dtheta/dt = yaw_rate - v kappa cos(theta) /
+    (1 - kappa y).
+    """
+    denom = 1.0 - kappa * y
+    course_rate = v * kappa * math.cos(th) / denom if abs(denom) > 1e-6 else 0.0
+    return -(v * math.sin(th) + lookahead * math.cos(th) * (yaw_rate - course_rate))
