@@ -298,9 +298,6 @@ def _consistency_errors(v: Mapping[str, ParamValue]) -> str | None:
     if abs(f('steering.trim')) >= f('steering.max_angle'):
         return (f"steering.trim: {v['steering.trim']!r} must lie inside "
                 f"+/-steering.max_angle {v['steering.max_angle']!r}")
-    if f('integral.bound') > f('steering.max_angle'):
-        return (f"integral.bound: {v['integral.bound']!r} exceeds steering.max_angle "
-                f"{v['steering.max_angle']!r}")
     points = v['course.points']
     assert isinstance(points, tuple)
     if points:
