@@ -94,7 +94,9 @@ class Integrator:
             return self.value
         method = settings.method
         rate = ki * error
-        if method == 'tracking':
+        if method == 'tracking' and ki > 0.0:
+            # Back-calculation only where there is integral action: with ki = 0 the
+            # saturation excess must not wind a term that nothing ever unwinds.
             rate += excess / settings.tracking_time
         elif method == 'conditional' and excess != 0.0 and rate * excess < 0.0:
             rate = 0.0
