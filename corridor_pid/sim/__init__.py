@@ -1,3 +1,20 @@
 # SPDX-License-Identifier: Apache-2.0
 # Copyright 2026 corridor_pid contributors
-"""sim."""
+"""Offline closed loop: vehicle, actuator and sensor models, scenarios and run metrics."""
+
+from __future__ import annotations
+
+from corridor_pid.sim.loop import SimResult, controller_config, simulate
+from corridor_pid.sim.metrics import Metrics, metrics_from
+from corridor_pid.sim.scenario import Scenario, load_scenario, scenario_from_mapping
+
+__all__ = [
+    'Metrics',
+    'Scenario',
+    'SimResult',
+    'controller_config',
+    'load_scenario',
+    'metrics_from',
+    'scenario_from_mapping',
+    'simulate',
+]
