@@ -9,8 +9,9 @@ course tangent, the curvature ``kappa`` (positive turning left) and the progress
 
 The tangent heading and the curvature are interpolated linearly between vertices (a vertex
 takes the mean heading of its two segments and the turning angle over the mean segment
-length as curvature), so ``theta`` and ``kappa`` are continuous across joins; the nearest
-segment is found by a local search from the last one, so a projection costs amortised O(1).
+length as curvature). Each segment owns the region between the bisectors of its end
+vertices, so ``y``, ``s``, ``theta`` and ``kappa`` are continuous across joins; the owning
+segment is found by walking from the last one, so a projection costs amortised O(1).
 """
 
 from __future__ import annotations
@@ -85,6 +86,18 @@ class Course:
         vert_heading.append(headings[-1])
         vert_kappa.append(0.0)
         self._vh, self._vk = vert_heading, vert_kappa
+        # Miter offsets at the vertices: moving by d along them keeps distance d from both
+        # adjacent segment lines.
+        self._mx: list[float] = []
+        self._my: list[float] = []
+        for k, vh in enumerate(vert_heading):
+            if 0 < k < n:
+                half = 0.5 * wrap_angle(headings[k] - headings[k - 1])
+                scale = 1.0 / max(math.cos(half), 0.2)
+            else:
+                scale = 1.0
+            self._mx.append(-math.sin(vh) * scale)
+            self._my.append(math.cos(vh) * scale)
         self._vs = starts + [s]
 
     # -- queries along the course -------------------------------------------------------
@@ -122,50 +135,72 @@ class Course:
 
     # -- projection ---------------------------------------------------------------------
 
-    def _distance2(self, i: int, x: float, y: float) -> float:
-        dx, dy = x - self._ax[i], y - self._ay[i]
-        t = dx * self._ux[i] + dy * self._uy[i]
-        last = len(self._len) - 1
-        if t < 0.0 and i > 0:
-            t = 0.0
-        elif t > self._len[i] and i < last:
-            t = self._len[i]
-        ex, ey = dx - t * self._ux[i], dy - t * self._uy[i]
-        return ex * ex + ey * ey
+    def _lam(self, i: int, x: float, y: float) -> float:
+        """Return the fraction along segment i between its vertex bisectors (may be <0, >1)."""
+        qx, qy = x - self._ax[i], y - self._ay[i]
+        dx, dy = self._ux[i] * self._len[i], self._uy[i] * self._len[i]
+        max_, may = self._mx[i], self._my[i]
+        mx, my = self._mx[i + 1] - max_, self._my[i + 1] - may
+        # cross(q - lam*D, mA + lam*M) = 0  ->  a lam^2 + b lam + c = 0
+        a = -(dx * my - dy * mx)
+        b = (qx * my - qy * mx) - (dx * may - dy * max_)
+        c = qx * may - qy * max_
+        if abs(a) < 1e-12:
+            return -c / b if b != 0.0 else 0.0
+        disc = b * b - 4.0 * a * c
+        naive = (qx * dx + qy * dy) / (self._len[i] ** 2)
+        if disc < 0.0:
+            return naive
+        root = math.sqrt(disc)
+        r1, r2 = (-b + root) / (2.0 * a), (-b - root) / (2.0 * a)
+        return r1 if abs(r1 - naive) <= abs(r2 - naive) else r2
 
     def reset_hint(self) -> None:
         """Forget the remembered segment (after a jump or a new run)."""
         self._hint = 0
 
     def project(self, x: float, y: float, yaw: float) -> Projection:
-        """Return the projection of pose (x [m], y [m], yaw [rad]) onto the course."""
+        """Return the projection of pose (x [m], y [m], yaw [rad]) onto the course.
+
+        Each segment owns the region between the bisectors of its two end vertices; inside
+        it, the pose lies on the line joining the two vertex miter offsets at distance
+        ``y``, at fraction ``lam`` along the segment, so ``y``, ``s`` and the interpolated
+        tangent are continuous across joins.
+        """
         if self.straight:
             return Projection(y, wrap_angle(yaw), 0.0, x, 0)
-        i = self._hint
         last = len(self._len) - 1
-        dist = self._distance2
-        best = dist(i, x, y)
-        while i < last:
-            nxt = dist(i + 1, x, y)
-            if nxt >= best:
+        i = self._hint
+        lam = self._lam(i, x, y)
+        for _ in range(last + 1):
+            if lam > 1.0 and i < last:
+                i += 1
+            elif lam < 0.0 and i > 0:
+                i -= 1
+            else:
                 break
-            i, best = i + 1, nxt
-        while i > 0:
-            prv = dist(i - 1, x, y)
-            if prv >= best:
+            nxt = self._lam(i, x, y)
+            if (lam > 1.0 and nxt < 0.0) or (lam < 0.0 and nxt > 1.0):
+                lam = 0.0 if nxt < 0.0 else 1.0  # numerically on a bisector
                 break
-            i, best = i - 1, prv
+            lam = nxt
+        else:  # pragma: no cover - the walk is bounded by the segment count
+            pass
         self._hint = i
-        ux, uy = self._ux[i], self._uy[i]
-        dx, dy = x - self._ax[i], y - self._ay[i]
-        t = dx * ux + dy * uy
-        cross = ux * dy - uy * dx
-        if (t < 0.0 and i > 0) or (t > self._len[i] and i < last):
-            lateral = math.copysign(math.sqrt(best), cross)
-            t = 0.0 if t < 0.0 else self._len[i]
-        else:
-            lateral = cross
-        s = self._s0[i] + t
+        qx, qy = x - self._ax[i], y - self._ay[i]
+        seg = self._len[i]
+        if (lam < 0.0 and i == 0) or (lam > 1.0 and i == last):
+            # Extended end segment: plain perpendicular projection.
+            ux, uy = self._ux[i], self._uy[i]
+            along = qx * ux + qy * uy
+            s = self._s0[i] + along
+            heading = self._vh[i + 1] if i == last and lam > 1.0 else self._vh[i]
+            return Projection(ux * qy - uy * qx, wrap_angle(yaw - heading), 0.0, s, i)
+        wx = self._mx[i] + lam * (self._mx[i + 1] - self._mx[i])
+        wy = self._my[i] + lam * (self._my[i + 1] - self._my[i])
+        ox, oy = qx - lam * self._ux[i] * seg, qy - lam * self._uy[i] * seg
+        lateral = (ox * wx + oy * wy) / (wx * wx + wy * wy)
+        s = self._s0[i] + lam * seg
         heading = self._interp(self._vh, i, s, True)
         kappa = self._interp(self._vk, i, s, False)
         return Projection(lateral, wrap_angle(yaw - heading), kappa, s, i)
