@@ -34,7 +34,7 @@ def test_polyline_signs_and_progress() -> None:
     assert p.lateral == pytest.approx(0.5)
     # Off the centreline, progress is measured between vertex bisectors: close, not equal.
     assert p.progress == pytest.approx(4.0, abs=0.3)
-    q = course.project(9.5, 6.0, math.pi / 2)  # on the second leg, right of it
+    q = course.project(10.5, 6.0, math.pi / 2)  # on the second leg (heading +y), right of it
     assert q.lateral == pytest.approx(-0.5)
     assert q.progress == pytest.approx(16.0, abs=0.3)
     assert q.heading == pytest.approx(0.0, abs=0.3)
