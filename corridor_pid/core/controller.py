@@ -171,6 +171,10 @@ class Controller:
             name = sorted(fixed)[0]
             raise ConfigError(f'{name}: cannot change while running (read-only)')
         old = self._config
+        if self._rate.primed:
+            # Re-express the last differentiated signal under the new lookahead so the D
+            # term sees no jump (a target_offset change still kicks with source 'error').
+            self._rate.last = self._measured(new, self._y, self._th, old.target_offset)
         if self._last is not None and self._prev_stamp is not None:
             before = self._unclamped(old)
             self._config = new
