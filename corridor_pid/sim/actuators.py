@@ -18,7 +18,9 @@ from __future__ import annotations
 import math
 from collections import deque
 
-__all__ = ['SpeedActuator', 'SteeringActuator', 'lag_response', 'rate_limited_time']
+__all__ = [
+    'SpeedActuator', 'SteeringActuator', 'lag_response', 'lag_responses', 'rate_limited_time',
+]
 
 
 def rate_limited_time(start: float, target: float, time_constant: float,
@@ -49,11 +51,24 @@ def lag_response(start: float, target: float, time_constant: float, max_rate: fl
     ramp = rate_limited_time(start, target, time_constant, max_rate)
     if time_constant <= 0.0:
         return start + sign * max_rate * dt if dt < ramp else target
-    if dt <= ramp:
+    if dt <= ramp and ramp > 0.0:
         return start + sign * max_rate * dt
     if ramp > 0.0:
         return target - sign * max_rate * time_constant * math.exp(-(dt - ramp) / time_constant)
     return target - err * math.exp(-dt / time_constant)
+
+
+def lag_responses(start: float, target: float, time_constant: float, max_rate: float,
+                  dt: float) -> tuple[float, float]:
+    """Return the :func:`lag_response` values after ``dt / 2`` and after ``dt`` seconds."""
+    err = target - start
+    if err == 0.0:
+        return target, target
+    if time_constant > 0.0 and rate_limited_time(start, target, time_constant, max_rate) == 0.0:
+        half = math.exp(-0.5 * dt / time_constant)
+        return target - err * half, target - err * half * half
+    return (lag_response(start, target, time_constant, max_rate, 0.5 * dt),
+            lag_response(start, target, time_constant, max_rate, dt))
 
 
 class SteeringActuator:
@@ -94,6 +109,10 @@ class SteeringActuator:
         """Return the wheel angle (rad) ``dt`` seconds from now, target held."""
         return lag_response(self.angle, self.target, self.time_constant, self.max_rate, dt)
 
+    def angles_after(self, dt: float) -> tuple[float, float]:
+        """Return the wheel angles (rad) ``dt / 2`` and ``dt`` seconds from now, target held."""
+        return lag_responses(self.angle, self.target, self.time_constant, self.max_rate, dt)
+
     def advance(self, dt: float) -> None:
         """Move the wheel angle ``dt`` seconds on."""
         self.angle = self.angle_after(dt)
@@ -115,6 +134,10 @@ class SpeedActuator:
     def speed_after(self, dt: float) -> float:
         """Return the speed (m/s) ``dt`` seconds from now, command held."""
         return lag_response(self.speed, self.target, self.time_constant, math.inf, dt)
+
+    def speeds_after(self, dt: float) -> tuple[float, float]:
+        """Return the speeds (m/s) ``dt / 2`` and ``dt`` seconds from now, command held."""
+        return lag_responses(self.speed, self.target, self.time_constant, math.inf, dt)
 
     def advance(self, dt: float) -> None:
         """Move the speed ``dt`` seconds on."""

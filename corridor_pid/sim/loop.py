@@ -173,8 +173,8 @@ def simulate(scenario: Scenario, config: Config, max_step: float = DEFAULT_MAX_S
             ramp = steering.ramp_time()
             if 1e-9 < ramp < h:
                 h, whole = ramp, False
-            a_mid, a_end = steering.angle_after(0.5 * h), steering.angle_after(h)
-            v_mid, v_end = drive.speed_after(0.5 * h), drive.speed_after(h)
+            a_mid, a_end = steering.angles_after(h)
+            v_mid, v_end = drive.speeds_after(h)
             x, y, yaw = rk4_step(x, y, yaw, wheelbase, h, (drive.speed, v_mid, v_end),
                                  (steering.angle, a_mid, a_end))
             steering.angle, drive.speed = a_end, v_end
