@@ -6,13 +6,12 @@ from __future__ import annotations
 
 import math
 
+from corridor_pid.core.ackermann import ackermann_fields, AckermannFields, yaw_rate_from
 import pytest
-
-from corridor_pid.core.ackermann import AckermannFields, ackermann_fields, yaw_rate_from
 
 
 def test_yaw_rate_is_speed_over_turning_radius() -> None:
-    """yaw rate = v / R with R = wheelbase / tan(steer) (Rajamani 2012, ch. 2)."""
+    """Yaw rate = v / R with R = wheelbase / tan(steer) (Rajamani 2012, ch. 2)."""
     wheelbase, steer, speed = 1.2, 0.25, 1.5
     radius = wheelbase / math.tan(steer)
     assert yaw_rate_from(steer, speed, wheelbase) == pytest.approx(speed / radius, rel=1e-12)
