@@ -104,6 +104,7 @@ class Controller:
     def __init__(self, config: Config, enabled: bool = False) -> None:
         """Create the controller in ``waiting`` (enabled) or ``disabled``."""
         self._config = config
+        self._plan = _Plan(config)
         self._course = Course(config.course.xy())
         self.state = State.WAITING if enabled else State.DISABLED
         self._integrator = Integrator()
@@ -177,7 +178,6 @@ class Controller:
             self._rate.last = self._measured(new, self._y, self._th, old.target_offset)
         if self._last is not None and self._prev_stamp is not None:
             before = self._unclamped(old)
-            self._config = new
             after = self._unclamped(new)
             delta = before - after
             ki_new = scheduled_gains(new.gains, self._speed)[1]
@@ -192,57 +192,60 @@ class Controller:
                 self._integrator.value = absorbed
             self._blend += delta
         self._config = new
+        self._plan = _Plan(new)
 
     def step(self, sample: PoseSample | None, t: float) -> StepResult:
         """Return the command at node time ``t`` [s] for ``sample`` (None on a timer tick)."""
-        cfg = self._config
-        h_out = 0.0 if self._t_out is None else t - self._t_out
-        if h_out < 0.0:
-            h_out = 0.0
+        plan = self._plan
+        t_out = self._t_out
+        h_out = 0.0 if t_out is None or t < t_out else t - t_out
         self._t_out = t
-        accepted = False
-        if sample is not None:
-            accepted = self._accept(sample, cfg)
+        accepted = False if sample is None else self._accept(sample, plan)
         state = self.state
-        if state == State.TRACKING and t - self._t_accept > cfg.watchdog.timeout:
+        if state is _TRACKING and t - self._t_accept > plan.timeout:
             self.state = state = State.STOPPED
             self.watchdog_stops += 1
             self._recovery = 0
         if accepted:
             self._t_accept = t
-            if state == State.WAITING:
-                self.state = state = State.TRACKING
+            if state is _TRACKING:
+                return self._control(sample, t, h_out, plan)  # type: ignore[arg-type]
+            if state is State.WAITING:
+                self.state = _TRACKING
                 self.reset()
-            elif state == State.STOPPED:
+                return self._control(sample, t, h_out, plan)  # type: ignore[arg-type]
+            if state is State.STOPPED:
                 self._recovery += 1
-                if self._recovery >= cfg.watchdog.recovery_count:
-                    self.state = state = State.TRACKING
+                if self._recovery >= plan.recovery_count:
+                    self.state = _TRACKING
                     self.reset()
-        if state == State.TRACKING and accepted and sample is not None:
-            return self._control(sample, t, h_out, cfg)
-        return self._idle(h_out, cfg, accepted)
+                    return self._control(sample, t, h_out, plan)  # type: ignore[arg-type]
+        return self._idle(h_out, plan, accepted)
 
     # -- internals ----------------------------------------------------------------------
 
-    def _accept(self, sample: PoseSample, cfg: Config) -> bool:
-        """Return whether ``sample`` is accepted; handle a large backwards stamp jump."""
+    def _accept(self, sample: PoseSample, plan: _Plan) -> bool:
+        """Return whether ``sample`` is accepted; handle a large backwards stamp jump.
+
+        Finiteness is checked on the sum of the fields: any NaN or infinity (or values so
+        large that they overflow) rejects the pose.
+        """
         stamp = sample.stamp
-        if not (_isfinite(stamp) and _isfinite(sample.x) and _isfinite(sample.y)
-                and _isfinite(sample.yaw)) or (
-                sample.speed is not None and not _isfinite(sample.speed)) or (
-                sample.yaw_rate is not None and not _isfinite(sample.yaw_rate)):
-            self.rejected += 1
-            return False
-        if cfg.pose_frame and sample.frame_id != cfg.pose_frame:
+        total = stamp + sample.x + sample.y + sample.yaw
+        if sample.speed is not None:
+            total += sample.speed
+        if sample.yaw_rate is not None:
+            total += sample.yaw_rate
+        if not _isfinite(total) or (plan.pose_frame and sample.frame_id != plan.pose_frame):
             self.rejected += 1
             return False
         last = self._last_stamp
         if last is not None and stamp <= last:
-            if last - stamp > cfg.watchdog.timeout:
+            if last - stamp > plan.timeout:
                 # Clock reset or bag loop: start over from this stamp.
                 self._last_stamp = stamp
                 self.reset()
-                if self.state != State.DISABLED:
+                if self.state is not State.DISABLED:
                     self.state = State.WAITING
                 return False
             self.rejected += 1
@@ -264,95 +267,108 @@ class Controller:
         return math.atan(cfg.vehicle.wheelbase * self._course.curvature_at(s + cfg.lookahead))
 
     def _measured(self, cfg: Config, y: float, th: float, offset: float) -> float:
+        """Return the differentiated signal [m]: -(y + L sin(theta)), or e with 'error'."""
         if cfg.derivative.source == 'error':
             return -((y - offset) + cfg.lookahead * math.sin(th))
         return -(y + cfg.lookahead * math.sin(th))
 
-    def _control(self, sample: PoseSample, t: float, h_out: float, cfg: Config) -> StepResult:
+    def _control(self, sample: PoseSample, t: float, h_out: float, plan: _Plan
+                 ) -> StepResult:
+        stamp = sample.stamp
         prev = self._prev_stamp
-        h = 0.0 if prev is None else sample.stamp - prev
-        self._prev_stamp = sample.stamp
+        h = 0.0 if prev is None else stamp - prev
+        self._prev_stamp = stamp
         x, yy, yaw = sample.x, sample.y, sample.yaw
-        vehicle = cfg.vehicle
-        if cfg.delay_compensation.enabled:
-            age = min(max(t - sample.stamp, 0.0), cfg.delay_compensation.max_age)
+        if plan.delay_compensation:
+            age = min(max(t - stamp, 0.0), plan.max_age)
             if age > 0.0:
                 v = self._speed if sample.speed is None else sample.speed
-                x, yy, yaw = _predicted_pose(x, yy, yaw, v, self._steer,
-                                             vehicle.wheelbase, age)
-        proj = self._course.project(x, yy, yaw)
-        y, th = proj.lateral, proj.heading
-        if cfg.smoothing.enabled:
-            a, b = cfg.smoothing.alpha, cfg.smoothing.beta
+                x, yy, yaw = _predicted_pose(x, yy, yaw, v, self._steer, plan.wheelbase, age)
+        course = self._course
+        y, th, kappa, s, index = course.project(x, yy, yaw)
+        if plan.smoothing:
+            a, b = plan.alpha, plan.beta
             y = self._smooth_y.update(y, h, a, b)
             th = self._smooth_th.update(th, h, a, b)
-        self._y, self._th, self._s, self._kappa = y, th, proj.progress, proj.curvature
-        speed_now = self._speed if sample.speed is None else abs(sample.speed)
-        kp, ki, kd = scheduled_gains(cfg.gains, speed_now)
-        offset = cfg.target_offset
-        e = -((y - offset) + cfg.lookahead * math.sin(th))
-        # D term on the measured part of e; the previous signal is re-expressed with the
-        # present lookahead so a live lookahead change gives no kick.
+        self._y, self._th, self._s, self._kappa = y, th, s, kappa
+        if plan.scheduled:
+            kp, ki, kd = scheduled_gains(
+                self._config.gains, self._speed if sample.speed is None else sample.speed)
+        else:
+            kp, ki, kd = plan.kp, plan.ki, plan.kd
+        lookahead = plan.lookahead
+        lead = lookahead * math.sin(th)
+        offset = plan.target_offset
+        e = -((y - offset) + lead)
+        # D term on the measured part of e (or e itself, derivative.source).
+        signal = e if plan.derivative_on_error else -(y + lead)
         rate_filter = self._rate
-        ftime = cfg.derivative.filter_time
-        signal = self._measured(cfg, y, th, offset)
-        if (cfg.derivative.rate_from == 'odometry' and sample.speed is not None
-                and sample.yaw_rate is not None):
+        if plan.rate_from_odometry and sample.speed is not None and sample.yaw_rate is not None:
             rate_filter.last, rate_filter.primed = signal, True
             rate = rate_filter.update_rate(
-                _error_rate(sample.speed, sample.yaw_rate, y, th, proj.curvature,
-                            cfg.lookahead), h, ftime)
+                _error_rate(sample.speed, sample.yaw_rate, y, th, kappa, lookahead), h,
+                plan.filter_time)
         else:
-            rate = rate_filter.update(signal, h, ftime)
+            rate = rate_filter.update(signal, h, plan.filter_time)
         d = kd * rate
-        integ = self._integrator.update(ki, e, h, self._excess, cfg.integral)
-        if h > 0.0 and self._blend != 0.0:
-            self._blend *= math.exp(-h / cfg.retune.blend_time)
-            if abs(self._blend) < 1e-12:
-                self._blend = 0.0
+        integ = self._integrator.update(ki, e, h, self._excess, plan.integral)
+        blend = self._blend
+        if h > 0.0 and blend != 0.0:
+            blend *= math.exp(-h / plan.blend_time)
+            if -1e-12 < blend < 1e-12:
+                blend = 0.0
+            self._blend = blend
         p = kp * e
-        ff = self._feedforward(cfg, proj.progress)
-        steering = cfg.steering
-        u = steering.trim + ff + p + integ + d + self._blend
-        steer, angle_sat, rate_sat = self._limited_steer(u, h_out, cfg)
+        ff = math.atan(plan.wheelbase * course.curvature_ahead(index, s + lookahead)) \
+            if plan.feedforward else 0.0
+        u = plan.trim + ff + p + integ + d + blend
+        steer, angle_sat, rate_sat = self._limited_steer(u, h_out, plan)
         self._excess = steer - u if (angle_sat or rate_sat) else 0.0
-        speed = self._limited_speed(self._target_speed(cfg, e, steer), h_out, cfg)
-        if not self._course.straight and proj.progress > self._course.length:
+        # Speed policy: cruise, slowed on error and by the lateral-acceleration limit.
+        target = plan.cruise
+        if plan.slowdown_error > 0.0:
+            target /= 1.0 + abs(e) / plan.slowdown_error
+        tan_s = abs(math.tan(steer))
+        if tan_s > 1e-9:
+            limit = math.sqrt(plan.lateral_wheelbase / tan_s)
+            if limit < target:
+                target = limit
+        speed = self._limited_speed(target, h_out, plan)
+        if s > course.length:
             self.state = State.FINISHED
-        result = StepResult(
-            steer, speed, self.state, True, True, e, rate, p, integ, d, ff, self._blend, u,
-            angle_sat, rate_sat, y, th, proj.curvature, proj.progress, kp, ki, kd,
-            self.rejected, self.watchdog_stops)
+        result: StepResult = _new_result(StepResult, (
+            steer, speed, self.state, True, True, e, rate, p, integ, d, ff, blend, u,
+            angle_sat, rate_sat, y, th, kappa, s, kp, ki, kd, self.rejected,
+            self.watchdog_stops))
         self._last = result
         return result
 
-    def _idle(self, h_out: float, cfg: Config, accepted: bool) -> StepResult:
+    def _idle(self, h_out: float, plan: _Plan, accepted: bool) -> StepResult:
         """Return the command while not tracking (or on a timer tick while tracking)."""
         last = self._last
-        if self.state == State.TRACKING and last is not None:
+        if self.state is _TRACKING and last is not None:
             return last._replace(computed=False, accepted=accepted, rejected=self.rejected,
                                  watchdog_stops=self.watchdog_stops)
-        trim = cfg.steering.trim
-        steer, _, rate_sat = self._limited_steer(trim, h_out, cfg)
-        speed = self._limited_speed(0.0, h_out, cfg)
-        kp, ki, kd = scheduled_gains(cfg.gains, self._speed)
-        result = StepResult(
+        trim = plan.trim
+        steer, _, rate_sat = self._limited_steer(trim, h_out, plan)
+        speed = self._limited_speed(0.0, h_out, plan)
+        kp, ki, kd = scheduled_gains(self._config.gains, self._speed)
+        return StepResult(
             steer, speed, self.state, False, accepted,
             0.0 if last is None else last.error, 0.0, 0.0, self._integrator.value, 0.0, 0.0,
             self._blend, trim, False, rate_sat, self._y, self._th, self._kappa, self._s,
             kp, ki, kd, self.rejected, self.watchdog_stops)
-        return result
 
-    def _limited_steer(self, u: float, h: float, cfg: Config) -> tuple[float, bool, bool]:
+    def _limited_steer(self, u: float, h: float, plan: _Plan) -> tuple[float, bool, bool]:
         """Return (steering [rad], angle-limited, rate-limited) for the wanted ``u``."""
-        lim = cfg.steering.max_angle
+        lim = plan.max_angle
         angle_sat = False
         wanted = u
         if wanted > lim:
             wanted, angle_sat = lim, True
         elif wanted < -lim:
             wanted, angle_sat = -lim, True
-        step = cfg.steering.max_rate * h
+        step = plan.max_rate * h
         prev = self._steer
         rate_sat = False
         if wanted > prev + step:
@@ -362,32 +378,64 @@ class Controller:
         self._steer = wanted
         return wanted, angle_sat, rate_sat
 
-    def _target_speed(self, cfg: Config, e: float, steer: float) -> float:
-        sp = cfg.speed
-        target = min(sp.cruise, sp.max)
-        if sp.slowdown_error > 0.0:
-            target /= 1.0 + abs(e) / sp.slowdown_error
-        tan_s = abs(math.tan(steer))
-        if tan_s > 1e-9:
-            limit = math.sqrt(sp.max_lateral_accel * cfg.vehicle.wheelbase / tan_s)
-            if limit < target:
-                target = limit
-        return target
-
-    def _limited_speed(self, target: float, h: float, cfg: Config) -> float:
-        sp = cfg.speed
+    def _limited_speed(self, target: float, h: float, plan: _Plan) -> float:
+        """Return ``target`` [m/s] slewed by the accel/decel limits, within [0, speed.max]."""
         prev = self._speed
-        up, down = sp.max_accel * h, sp.max_decel * h
+        up, down = plan.max_accel * h, plan.max_decel * h
         if target > prev + up:
             target = prev + up
         elif target < prev - down:
             target = prev - down
-        if target > sp.max:
-            target = sp.max
+        if target > plan.max_speed:
+            target = plan.max_speed
         if target < 0.0:
             target = 0.0
         self._speed = target
         return target
+
+
+class _Plan:
+    """Flat snapshot of the config values ``step`` reads on every pose (hot-path cache)."""
+
+    __slots__ = (
+        'timeout', 'recovery_count', 'pose_frame', 'delay_compensation', 'max_age',
+        'wheelbase', 'smoothing', 'alpha', 'beta', 'scheduled', 'kp', 'ki', 'kd',
+        'lookahead', 'target_offset', 'derivative_on_error', 'rate_from_odometry',
+        'filter_time', 'integral', 'blend_time', 'feedforward', 'trim', 'cruise',
+        'slowdown_error', 'lateral_wheelbase', 'max_angle', 'max_rate', 'max_accel',
+        'max_decel', 'max_speed')
+
+    def __init__(self, cfg: Config) -> None:
+        """Copy the values out of the nested config."""
+        self.timeout = cfg.watchdog.timeout
+        self.recovery_count = cfg.watchdog.recovery_count
+        self.pose_frame = cfg.pose_frame
+        self.delay_compensation = cfg.delay_compensation.enabled
+        self.max_age = cfg.delay_compensation.max_age
+        self.wheelbase = cfg.vehicle.wheelbase
+        self.smoothing = cfg.smoothing.enabled
+        self.alpha, self.beta = cfg.smoothing.alpha, cfg.smoothing.beta
+        self.scheduled = cfg.gains.reference_speed > 0.0
+        self.kp, self.ki, self.kd = cfg.gains.kp, cfg.gains.ki, cfg.gains.kd
+        self.lookahead = cfg.lookahead
+        self.target_offset = cfg.target_offset
+        self.derivative_on_error = cfg.derivative.source == 'error'
+        self.rate_from_odometry = cfg.derivative.rate_from == 'odometry'
+        self.filter_time = cfg.derivative.filter_time
+        self.integral = cfg.integral
+        self.blend_time = cfg.retune.blend_time
+        self.feedforward = cfg.feedforward.enabled and bool(cfg.course.points)
+        self.trim = cfg.steering.trim
+        self.cruise = min(cfg.speed.cruise, cfg.speed.max)
+        self.slowdown_error = cfg.speed.slowdown_error
+        self.lateral_wheelbase = cfg.speed.max_lateral_accel * cfg.vehicle.wheelbase
+        self.max_angle, self.max_rate = cfg.steering.max_angle, cfg.steering.max_rate
+        self.max_accel, self.max_decel = cfg.speed.max_accel, cfg.speed.max_decel
+        self.max_speed = cfg.speed.max
+
+
+_TRACKING = State.TRACKING
+_new_result = tuple.__new__
 
 
 def _predicted_pose(x: float, y: float, yaw: float, v: float, steer: float,

@@ -23,6 +23,10 @@ from typing import NamedTuple
 
 __all__ = ['Course', 'Projection', 'wrap_angle']
 
+_PI = math.pi
+_TAU = 2.0 * math.pi
+_new_projection = tuple.__new__
+
 
 def wrap_angle(angle: float) -> float:
     """Return ``angle`` wrapped into [-pi, pi) (rad)."""
@@ -86,6 +90,8 @@ class Course:
         vert_heading.append(headings[-1])
         vert_kappa.append(0.0)
         self._vh, self._vk = vert_heading, vert_kappa
+        self._dvh = [wrap_angle(b - a) for a, b in zip(vert_heading[:-1], vert_heading[1:])]
+        self._last = n - 1
         # Miter offsets at the vertices: moving by d along them keeps distance d from both
         # adjacent segment lines.
         self._mx: list[float] = []
@@ -118,6 +124,20 @@ class Course:
         if self.straight:
             return 0.0
         return self._interp(self._vk, self._segment_at(s), s, False)
+
+    def curvature_ahead(self, index: int, s: float) -> float:
+        """Return the curvature at progress ``s`` (1/m), searching forward from segment
+        ``index`` (the projection's): O(1) for a lookahead of a few segments."""
+        if self.straight:
+            return 0.0
+        starts = self._s0
+        last = len(starts) - 1
+        i = index
+        while i < last and s >= starts[i + 1]:
+            i += 1
+        while i > 0 and s < starts[i]:
+            i -= 1
+        return self._interp(self._vk, i, s, False)
 
     def heading_at(self, s: float) -> float:
         """Return the course tangent heading at progress ``s`` (rad)."""
@@ -168,25 +188,24 @@ class Course:
         tangent are continuous across joins.
         """
         if self.straight:
-            return Projection(y, wrap_angle(yaw), 0.0, x, 0)
-        last = len(self._len) - 1
+            return _new_projection(Projection, (y, (yaw + _PI) % _TAU - _PI, 0.0, x, 0))
+        last = self._last
         i = self._hint
         lam = self._lam(i, x, y)
-        for _ in range(last + 1):
-            if lam > 1.0 and i < last:
-                i += 1
-            elif lam < 0.0 and i > 0:
-                i -= 1
-            else:
-                break
-            nxt = self._lam(i, x, y)
-            if (lam > 1.0 and nxt < 0.0) or (lam < 0.0 and nxt > 1.0):
-                lam = 0.0 if nxt < 0.0 else 1.0  # numerically on a bisector
-                break
-            lam = nxt
-        else:  # pragma: no cover - the walk is bounded by the segment count
-            pass
-        self._hint = i
+        if lam > 1.0 or lam < 0.0:
+            for _ in range(last + 1):  # the walk is bounded by the segment count
+                if lam > 1.0 and i < last:
+                    i += 1
+                elif lam < 0.0 and i > 0:
+                    i -= 1
+                else:
+                    break
+                nxt = self._lam(i, x, y)
+                if (lam > 1.0 and nxt < 0.0) or (lam < 0.0 and nxt > 1.0):
+                    lam = 0.0 if nxt < 0.0 else 1.0  # numerically on a bisector
+                    break
+                lam = nxt
+            self._hint = i
         qx, qy = x - self._ax[i], y - self._ay[i]
         seg = self._len[i]
         if (lam < 0.0 and i == 0) or (lam > 1.0 and i == last):
@@ -200,10 +219,11 @@ class Course:
         wy = self._my[i] + lam * (self._my[i + 1] - self._my[i])
         ox, oy = qx - lam * self._ux[i] * seg, qy - lam * self._uy[i] * seg
         lateral = (ox * wx + oy * wy) / (wx * wx + wy * wy)
-        s = self._s0[i] + lam * seg
-        heading = self._interp(self._vh, i, s, True)
-        kappa = self._interp(self._vk, i, s, False)
-        return Projection(lateral, wrap_angle(yaw - heading), kappa, s, i)
+        frac = 0.0 if lam < 0.0 else 1.0 if lam > 1.0 else lam
+        heading = self._vh[i] + frac * self._dvh[i]
+        kappa = self._vk[i] + frac * (self._vk[i + 1] - self._vk[i])
+        return _new_projection(Projection, (
+            lateral, (yaw - heading + _PI) % _TAU - _PI, kappa, self._s0[i] + lam * seg, i))
 
     def global_pose(self, s: float, lateral: float, heading_error: float
                     ) -> tuple[float, float, float]:
