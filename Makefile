@@ -32,8 +32,8 @@ export ROS_DOMAIN_ID
 unexport ROS_LOCALHOST_ONLY ROS_STATIC_PEERS ROS_DISCOVERY_SERVER
 
 # Until the DDS demo verb exists, the demo is a real closed-loop run of the core.
-DEMO_SCENARIO := $(firstword $(wildcard config/scenarios/hospital*.yaml) \
-                             $(wildcard config/scenarios/*.yaml))
+DEMO_SCENARIO := $(firstword $(wildcard config/scenarios/hospital_corridor_bay_exit.yaml) \
+                             $(sort $(wildcard config/scenarios/*.yaml)))
 DEMO_ARGS ?= $(if $(wildcard corridor_pid/commands/demo.py),demo --out out/demo,\
                   simulate $(DEMO_SCENARIO))
 
