@@ -4,9 +4,9 @@
 
 from __future__ import annotations
 
-from corridor_pid.sim.loop import SimResult, controller_config, simulate
+from corridor_pid.sim.loop import controller_config, SimResult, simulate
 from corridor_pid.sim.metrics import Metrics, metrics_from
-from corridor_pid.sim.scenario import Scenario, load_scenario, scenario_from_mapping
+from corridor_pid.sim.scenario import load_scenario, Scenario, scenario_from_mapping
 
 __all__ = [
     'Metrics',

@@ -15,8 +15,8 @@ solved in closed form, so the simulation advances them exactly over any step.
 
 from __future__ import annotations
 
-import math
 from collections import deque
+import math
 
 __all__ = [
     'SpeedActuator', 'SteeringActuator', 'lag_response', 'lag_responses', 'rate_limited_time',

@@ -27,8 +27,6 @@ from __future__ import annotations
 from collections import deque
 from dataclasses import dataclass
 
-import numpy as np
-
 from corridor_pid.core.config import Config, config_from_params
 from corridor_pid.core.controller import Controller, PoseSample, StepResult
 from corridor_pid.core.course import Course
@@ -37,6 +35,7 @@ from corridor_pid.sim.metrics import Metrics, metrics_from
 from corridor_pid.sim.scenario import Scenario
 from corridor_pid.sim.sensor import PoseSensor
 from corridor_pid.sim.vehicle import rk4_step
+import numpy as np
 
 __all__ = ['DEFAULT_MAX_STEP', 'TRACE_COLUMNS', 'SimResult', 'controller_config', 'simulate']
 
@@ -61,10 +60,10 @@ TRACE_COLUMNS: tuple[tuple[str, str, str], ...] = (
     ('i', 'rad', 'integral term'),
     ('d', 'rad', 'derivative term'),
     ('feedforward', 'rad', 'curvature feedforward term'),
-    ('computed', '', '1 when the row\'s pose produced a new command'),
+    ('computed', '', "1 when the row's pose produced a new command"),
     ('angle_saturated', '', '1 when the angle limit bound that command'),
     ('rate_saturated', '', '1 when the rate limit bound that command'),
-    ('state', '', 'controller state after the row\'s step'),
+    ('state', '', "controller state after the row's step"),
 )
 """Trace columns: name, unit, meaning."""
 

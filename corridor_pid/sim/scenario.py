@@ -26,16 +26,15 @@ problem raises :class:`ScenarioError` naming the key and quoting the value.
 
 from __future__ import annotations
 
-import difflib
-import math
 from collections.abc import Mapping
 from dataclasses import dataclass
+import difflib
+import math
 from pathlib import Path
-from typing import Any, NamedTuple, NotRequired, TypedDict
-
-import yaml
+from typing import Any, NamedTuple, TypedDict
 
 from corridor_pid.core.errors import ScenarioError
+import yaml
 
 __all__ = [
     'SCENARIO_KEYS',
@@ -52,13 +51,16 @@ __all__ = [
 
 # -- the YAML shape ------------------------------------------------------------------------
 
-class VehicleYaml(TypedDict):
-    """``vehicle`` section: wheelbase [m], time constants and dead time [s]."""
-
+class _VehicleRequired(TypedDict):
     wheelbase: float
     steer_time_constant: float
     steer_delay: float
-    speed_time_constant: NotRequired[float]
+
+
+class VehicleYaml(_VehicleRequired, total=False):
+    """``vehicle`` section: wheelbase [m], time constants and dead time [s]."""
+
+    speed_time_constant: float
 
 
 class SteeringYaml(TypedDict):
@@ -90,21 +92,24 @@ class PoseNoiseYaml(TypedDict, total=False):
     seed: int
 
 
-class ScenarioYaml(TypedDict):
-    """The whole scenario file."""
-
-    description: NotRequired[str]
+class _ScenarioRequired(TypedDict):
     vehicle: VehicleYaml
     steering: SteeringYaml
-    course: NotRequired[CourseYaml]
-    corridor_width: NotRequired[float]
-    start: NotRequired[StartYaml]
     speed: float
     duration: float
     pose_rate: float
-    pose_noise: NotRequired[PoseNoiseYaml]
-    pose_delay: NotRequired[float]
-    dropouts: NotRequired[list[list[float]]]
+
+
+class ScenarioYaml(_ScenarioRequired, total=False):
+    """The whole scenario file (the keys of this class are optional)."""
+
+    description: str
+    course: CourseYaml
+    corridor_width: float
+    start: StartYaml
+    pose_noise: PoseNoiseYaml
+    pose_delay: float
+    dropouts: list[list[float]]
 
 
 # -- the validated value -------------------------------------------------------------------

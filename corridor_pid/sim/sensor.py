@@ -11,13 +11,12 @@ window ``[t0, t1)`` is lost: it never arrives.
 
 from __future__ import annotations
 
-import math
 from collections.abc import Sequence
-
-import numpy as np
+import math
 
 from corridor_pid.core.controller import PoseSample
 from corridor_pid.core.course import wrap_angle
+import numpy as np
 
 __all__ = ['PoseSensor']
 

@@ -14,8 +14,8 @@ approaches ``1/r``.
 
 from __future__ import annotations
 
-import math
 from collections.abc import Sequence
+import math
 from typing import NamedTuple
 
 __all__ = ['Arc', 'Straight', 'centreline_points']

@@ -6,16 +6,10 @@ from __future__ import annotations
 
 import math
 
+from corridor_pid.sim.actuators import lag_response, lag_responses, SpeedActuator, SteeringActuator
 import numpy as np
 import pytest
 from scipy import signal
-
-from corridor_pid.sim.actuators import (
-    SpeedActuator,
-    SteeringActuator,
-    lag_response,
-    lag_responses,
-)
 
 
 def test_steering_lag_reaches_63_percent_at_one_time_constant() -> None:

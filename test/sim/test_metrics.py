@@ -6,15 +6,12 @@ from __future__ import annotations
 
 import math
 
-import numpy as np
-import pytest
-
 from corridor_pid.sim.metrics import (
-    METRIC_UNITS,
     diverged,
     final_lateral_error,
     max_lateral_error,
     mean_speed,
+    METRIC_UNITS,
     metrics_from,
     overshoot,
     rms_lateral_error,
@@ -23,6 +20,8 @@ from corridor_pid.sim.metrics import (
     settling_time,
     watchdog_stops,
 )
+import numpy as np
+import pytest
 
 
 def test_rms_max_and_final() -> None:

@@ -4,10 +4,9 @@
 
 from __future__ import annotations
 
+from corridor_pid.sim.sensor import PoseSensor
 import numpy as np
 import pytest
-
-from corridor_pid.sim.sensor import PoseSensor
 
 
 def test_schedule_and_delay() -> None:

@@ -6,10 +6,9 @@ from __future__ import annotations
 
 import math
 
+from corridor_pid.sim.vehicle import arc_step, rk4_step, turning_radius, yaw_rate
 import numpy as np
 import pytest
-
-from corridor_pid.sim.vehicle import arc_step, rk4_step, turning_radius, yaw_rate
 
 WHEELBASE = 0.9
 
