@@ -87,8 +87,10 @@ def guard_verdict(config: Config, speed: float) -> GuardVerdict:
                                 f'(gains.kp, gains.ki and gains.kd are all 0)', margins, v)
         problems = margin_shortfalls(config, margins)
         if not margins.stable:
-            if not problems:
-                problems = [f'closed-loop pole at {margins.spectral_abscissa:+.3g} 1/s']
+            # Gain and delay margins only measure the distance to instability of a stable
+            # loop; for an unstable one name its phase margin and its rightmost pole.
+            problems = [p for p in problems if p.startswith('phase')]
+            problems.append(f'closed-loop pole at {margins.spectral_abscissa:+.3g} 1/s')
             return GuardVerdict(False, f'unstable at {v:.2f} m/s: ' + '; '.join(problems),
                                 margins, v)
         if problems:
