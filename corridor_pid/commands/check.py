@@ -24,7 +24,7 @@ from typing import Any
 from corridor_pid.core.config import Config
 from corridor_pid.core.errors import CorridorPidError
 from corridor_pid.core.paramsfile import load_params_file
-from corridor_pid.tuning.guard import MIN_SPEED, GuardVerdict, guard_verdict
+from corridor_pid.tuning.guard import guard_verdict, GuardVerdict, MIN_SPEED
 from corridor_pid.tuning.linear import LoopModel
 from corridor_pid.tuning.margins import Margins, model_margins
 

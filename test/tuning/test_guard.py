@@ -4,13 +4,12 @@
 
 from __future__ import annotations
 
-import numpy as np
-import pytest
-
 from corridor_pid.core.config import Config, default_config
 from corridor_pid.sim.loop import simulate
 from corridor_pid.sim.scenario import Scenario, scenario_from_mapping
 from corridor_pid.tuning.guard import guard_verdict
+import numpy as np
+import pytest
 
 # A delivery cart in a hospital corridor, 1 cm off the centreline: a small perturbation,
 # so a linearly unstable loop shows itself by growing away from it.

@@ -4,12 +4,11 @@
 
 from __future__ import annotations
 
-import numpy as np
-import pytest
-
 from corridor_pid.core.config import Config, default_config
 from corridor_pid.tuning.linear import LoopModel
 from corridor_pid.tuning.margins import Margins, model_margins
+import numpy as np
+import pytest
 
 SPEEDS = (0.5, 0.75, 1.0, 1.5, 2.0)
 
