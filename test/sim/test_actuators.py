@@ -79,8 +79,8 @@ def test_pure_rate_limiter_without_lag() -> None:
     (0.0, 0.4, 0.1, 0.5, 0.3), (0.1, 0.12, 0.1, 0.5, 0.01), (0.3, -0.3, 0.0, 2.0, 0.2),
     (0.0, 1.0, 0.25, math.inf, 0.05),
 ])
-def test_paired_responses_equal_single_ones(start: float, target: float, tau: float,
-                                           rate: float, dt: float) -> None:
+def test_paired_responses_equal_single_ones(
+        start: float, target: float, tau: float, rate: float, dt: float) -> None:
     """The half-step and full-step pair agrees with two single evaluations."""
     pair = lag_responses(start, target, tau, rate, dt)
     single = (lag_response(start, target, tau, rate, 0.5 * dt),

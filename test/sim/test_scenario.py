@@ -71,7 +71,7 @@ def test_full_scenario_in_nested_and_dotted_spelling() -> None:
     (_with('vehicle.wheelbase', 0.0), r'vehicle\.wheelbase: must be > 0, got 0\.0'),
     (_with('speed', math.nan), r'^speed: must be finite, got nan$'),
     (_with('pose_noise.position', math.inf), r'pose_noise\.position: must be finite'),
-    (_with('vehicle.wheelbsae', 0.9), r"vehicle\.wheelbsae: unknown scenario key \(did you "
+    (_with('vehicle.wheelbsae', 0.9), r'vehicle\.wheelbsae: unknown scenario key \(did you '
                                       r"mean 'vehicle\.wheelbase'\?\)"),
     (_with('colour', 'red'), r'^colour: unknown scenario key$'),
     (_with('duration', 'long'), r"^duration: expected a number, got 'long'$"),
