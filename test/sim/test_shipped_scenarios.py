@@ -1,0 +1,50 @@
+# SPDX-License-Identifier: Apache-2.0
+# Copyright 2026 corridor_pid contributors
+"""Every shipped scenario settles under the proposed default gains."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from corridor_pid.core.config import config_from_params
+from corridor_pid.sim.loop import simulate
+from corridor_pid.sim.metrics import settling_band
+from corridor_pid.sim.scenario import load_scenario
+import numpy as np
+import pytest
+
+SCENARIO_DIR = Path(__file__).resolve().parents[2] / 'config' / 'scenarios'
+
+PROPOSED_DEFAULTS = {
+    'gains.kp': 0.8, 'gains.ki': 0.0, 'gains.kd': 0.05, 'lookahead': 1.3,
+    'derivative.filter_time': 0.15, 'smoothing.enabled': True,
+}
+"""The gains proposed for config/corridor_pid.yaml (tuned on this scenario library)."""
+
+
+def _longest_run(flags: np.ndarray) -> int:
+    """Return the length of the longest run of True in ``flags``."""
+    best = count = 0
+    for flag in flags:
+        count = count + 1 if flag else 0
+        best = max(best, count)
+    return best
+
+
+@pytest.mark.parametrize('path', sorted(SCENARIO_DIR.glob('*.yaml')), ids=lambda p: p.stem)
+def test_shipped_scenario_settles_without_sustained_saturation(path: Path) -> None:
+    """No divergence, inside the settling band at the end, no long saturation."""
+    scenario = load_scenario(path)
+    run = simulate(scenario, config_from_params(PROPOSED_DEFAULTS))
+    m = run.metrics
+    trace = run.trace
+    assert m.diverged is False
+    assert m.final_lateral_error < settling_band(float(trace['lateral'][0]))
+    assert m.settling_time < scenario.duration - 1.0
+    assert m.steering_saturated_fraction < 0.05
+    assert m.steering_rate_saturated_fraction < 0.15
+    computed = trace['computed'] > 0.0
+    # No limit binds for a whole second in a row.
+    for column in ('angle_saturated', 'rate_saturated'):
+        assert _longest_run(trace[column][computed] > 0.0) < scenario.pose_rate
+    assert m.watchdog_stops == (1 if scenario.dropouts else 0)
