@@ -30,17 +30,13 @@ from dataclasses import dataclass
 from corridor_pid.core.config import Config, config_from_params
 from corridor_pid.core.controller import Controller, PoseSample, StepResult
 from corridor_pid.core.course import Course
-from corridor_pid.sim.actuators import SpeedActuator, SteeringActuator
 from corridor_pid.sim.metrics import Metrics, metrics_from
+from corridor_pid.sim.plant import DEFAULT_MAX_STEP, Plant
 from corridor_pid.sim.scenario import Scenario
 from corridor_pid.sim.sensor import PoseSensor
-from corridor_pid.sim.vehicle import rk4_step
 import numpy as np
 
 __all__ = ['DEFAULT_MAX_STEP', 'TRACE_COLUMNS', 'SimResult', 'controller_config', 'simulate']
-
-DEFAULT_MAX_STEP = 0.005
-"""Longest plant integration step (s)."""
 
 TRACE_COLUMNS: tuple[tuple[str, str, str], ...] = (
     ('t', 's', 'time since the start of the run'),
@@ -105,21 +101,15 @@ def simulate(scenario: Scenario, config: Config, max_step: float = DEFAULT_MAX_S
 
     """
     cfg = controller_config(scenario, config)
-    plant = scenario.vehicle
-    start = scenario.start
-    steering = SteeringActuator(plant.steer_time_constant, scenario.steering.max_rate,
-                                scenario.steering.max_angle, plant.steer_delay)
-    drive = SpeedActuator(plant.speed_time_constant)
+    plant = Plant(scenario, max_step)
+    steering, drive = plant.steering, plant.drive
     noise = scenario.pose_noise
     sensor = PoseSensor(scenario.pose_rate, scenario.duration, noise.position, noise.heading,
                         noise.seed, scenario.pose_delay, scenario.dropouts, cfg.pose_frame)
     controller = Controller(cfg, enabled=True)
     truth = Course(scenario.course_points)
     duration = scenario.duration
-    wheelbase = plant.wheelbase
     tick_period = 1.0 / cfg.diagnostics.rate
-
-    x, y, yaw = start.x, start.y, start.heading
     t = 0.0
     rows: list[tuple[float, ...]] = []
     states: list[str] = []
@@ -128,6 +118,7 @@ def simulate(scenario: Scenario, config: Config, max_step: float = DEFAULT_MAX_S
     last: StepResult | None = None
 
     def record(now: float, computed: bool, result: StepResult | None) -> None:
+        x, y, yaw = plant.x, plant.y, plant.yaw
         proj = truth.project(x, y, yaw)
         if result is None:
             rows.append((now, x, y, yaw, proj.lateral, proj.heading, proj.progress,
@@ -164,26 +155,14 @@ def simulate(scenario: Scenario, config: Config, max_step: float = DEFAULT_MAX_S
         if t_next > duration:
             t_next = duration
         # Advance the plant to t_next with the actuator targets held.
-        while t < t_next:
-            h = t_next - t
-            whole = True
-            if h > max_step:
-                h, whole = max_step, False
-            ramp = steering.ramp_time()
-            if 1e-9 < ramp < h:
-                h, whole = ramp, False
-            a_mid, a_end = steering.angles_after(h)
-            v_mid, v_end = drive.speeds_after(h)
-            x, y, yaw = rk4_step(x, y, yaw, wheelbase, h, (drive.speed, v_mid, v_end),
-                                 (steering.angle, a_mid, a_end))
-            steering.angle, drive.speed = a_end, v_end
-            t = t_next if whole else t + h
+        plant.advance(t_next)
+        t = plant.t
         if t_next == duration and min(t_sample, t_arrive, j * tick_period,
                                       steering.next_change()) > duration:
             break
         steering.apply_due(t)
         if t_sample == t:
-            sample = None if sensor.lost[k] else sensor.measure(k, x, y, yaw)
+            sample = None if sensor.lost[k] else sensor.measure(k, plant.x, plant.y, plant.yaw)
             in_flight.append((sensor.arrival(k), sample))
             k += 1
         while in_flight and in_flight[0][0] == t:
