@@ -5,6 +5,8 @@
 from __future__ import annotations
 
 import os
+import select
+import signal
 import subprocess
 import sys
 import textwrap
@@ -128,3 +130,87 @@ def test_isolation_module_does_not_import_rclpy() -> None:
     code = ('import sys; import corridor_pid.ros.isolation; '
             'sys.exit(3 if "rclpy" in sys.modules else 0)')
     assert subprocess.run([sys.executable, '-c', code], timeout=60).returncode == 0
+
+
+# A talker for the DDS check: publishes its domain id on /isolation_check every 20 ms, and
+# prints 'ready' once its own reader on that topic has matched (its DDS is up).
+TALKER = textwrap.dedent("""
+    import os
+    import rclpy
+    from rclpy.qos import QoSProfile, ReliabilityPolicy
+    from std_msgs.msg import String
+    rclpy.init()
+    node = rclpy.create_node('isolation_talker')
+    qos = QoSProfile(depth=10, reliability=ReliabilityPolicy.RELIABLE)
+    pub = node.create_publisher(String, 'isolation_check', qos)
+    node.create_subscription(String, 'isolation_check', lambda msg: None, qos)
+    said_ready = False
+
+    def tick():
+        global said_ready
+        pub.publish(String(data=os.environ['ROS_DOMAIN_ID']))
+        if not said_ready and pub.get_subscription_count() >= 1:
+            print('ready', flush=True)
+            said_ready = True
+
+    node.create_timer(0.02, tick)
+    try:
+        rclpy.spin(node)
+    except KeyboardInterrupt:
+        pass
+""")
+
+
+HANG_GUARD = 120.0
+"""Seconds after which a DDS wait gives up (only against hangs; no test measures time)."""
+
+
+def stop_by_pid(child: subprocess.Popen[str]) -> None:
+    """Stop a node subprocess: SIGINT, then SIGTERM if it lingers."""
+    if child.poll() is None:
+        child.send_signal(signal.SIGINT)
+        try:
+            child.wait(timeout=10)
+        except subprocess.TimeoutExpired:
+            child.terminate()
+            child.wait(timeout=10)
+
+
+@pytest.mark.dds
+def test_claimed_domain_carries_dds_and_keeps_other_domains_out(
+        dds_env: dict[str, str], other_domain_env: dict[str, str], ros_domain_id: int) -> None:
+    """A talker in our domain reaches us over DDS; one in another domain never shows up."""
+    import rclpy
+    from rclpy.qos import QoSProfile, ReliabilityPolicy
+    from std_msgs.msg import String
+
+    talkers = [subprocess.Popen([sys.executable, '-c', TALKER], env=env, text=True,
+                                stdout=subprocess.PIPE, start_new_session=True)
+               for env in (dds_env, other_domain_env)]
+    context = rclpy.Context()
+    rclpy.init(context=context)
+    try:
+        for talker in talkers:  # both have their DDS up before we judge
+            assert talker.stdout is not None
+            readable, _, _ = select.select([talker.stdout], [], [], HANG_GUARD)
+            assert readable, 'a talker never reported its DDS up'
+            assert talker.stdout.readline().strip() == 'ready'
+        node = rclpy.create_node('isolation_listener', context=context)
+        heard: list[str] = []
+        node.create_subscription(
+            String, 'isolation_check', lambda msg: heard.append(msg.data),
+            QoSProfile(depth=100, reliability=ReliabilityPolicy.RELIABLE))
+        executor = rclpy.executors.SingleThreadedExecutor(context=context)
+        executor.add_node(node)
+        for _ in range(int(HANG_GUARD)):  # a guard against a hang, not a time assertion
+            if len(heard) >= 20:
+                break
+            executor.spin_once(timeout_sec=1.0)
+        assert set(heard) == {str(ros_domain_id)}
+        assert node.count_publishers('/isolation_check') == 1
+        executor.shutdown()
+        node.destroy_node()
+    finally:
+        rclpy.shutdown(context=context)
+        for talker in talkers:
+            stop_by_pid(talker)
