@@ -30,6 +30,7 @@ from dataclasses import dataclass
 from corridor_pid.core.config import Config, config_from_params
 from corridor_pid.core.controller import Controller, PoseSample, StepResult
 from corridor_pid.core.course import Course
+from corridor_pid.core.errors import ConfigError
 from corridor_pid.sim.metrics import Metrics, metrics_from
 from corridor_pid.sim.plant import DEFAULT_MAX_STEP, Plant
 from corridor_pid.sim.scenario import Scenario
@@ -86,8 +87,12 @@ def controller_config(scenario: Scenario, config: Config) -> Config:
             ``speed.max`` of ``config``).
 
     """
-    return config_from_params(
-        {'course.points': scenario.course_flat(), 'speed.cruise': scenario.speed}, base=config)
+    mission = {'course.points': scenario.course_flat(), 'speed.cruise': scenario.speed}
+    try:
+        return config_from_params(mission, base=config)
+    except ConfigError as err:
+        raise ConfigError(f"{err} (speed.cruise and course.points come from the scenario's "
+                          'speed and course)') from err
 
 
 def simulate(scenario: Scenario, config: Config, max_step: float = DEFAULT_MAX_STEP
