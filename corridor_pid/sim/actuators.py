@@ -64,7 +64,7 @@ def lag_responses(start: float, target: float, time_constant: float, max_rate: f
     err = target - start
     if err == 0.0:
         return target, target
-    if time_constant > 0.0 and rate_limited_time(start, target, time_constant, max_rate) == 0.0:
+    if time_constant > 0.0 and abs(err) <= max_rate * time_constant:  # the rate limit is idle
         half = math.exp(-0.5 * dt / time_constant)
         return target - err * half, target - err * half * half
     return (lag_response(start, target, time_constant, max_rate, 0.5 * dt),
