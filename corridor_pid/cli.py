@@ -256,6 +256,9 @@ def build_parser() -> argparse.ArgumentParser:
     tune.add_argument(
         '--jobs', metavar='N', type=_positive_int,
         help='scenario evaluations in parallel (default: the number of cores)')
+    tune.add_argument(
+        '--evaluations', metavar='N', type=_positive_int,
+        help='candidate budget of the optimiser (default: 60 per free value)')
     _add_json(tune)
     tune.add_argument(
         '--plot', metavar='FILE.png', help='write a before/after plot (needs matplotlib)')

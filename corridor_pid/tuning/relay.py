@@ -41,7 +41,7 @@ __all__ = [
 PlantStep = Callable[[float], float]
 """A plant: apply input ``u`` for one time step, return the output at the step's end."""
 
-#: Largest relative spread of the measured periods for a settled limit cycle.
+#: Largest relative drift of the measured periods for a settled limit cycle.
 PERIOD_SPREAD = 0.05
 #: kp [rad/m] that turns the steering clamp into a relay in the simulated experiment
 #: (the top of gains.kp's range).
@@ -58,7 +58,7 @@ class RelayResult:
         amplitude: a, half the output's peak-to-peak over the measured cycles.
         relay_amplitude: d [input units].
         cycles: number of cycles measured.
-        period_spread: (longest - shortest) / mean of the measured periods.
+        period_spread: (longest - shortest) / mean of the measured periods (jitter).
         source: where the limit cycle ran ('step function', 'linear model', 'simulator').
         t: time [s] of the record.
         y: output of the record.
@@ -88,7 +88,10 @@ def limit_cycle(t: FloatArray, y: FloatArray, relay_amplitude: float, setpoint: 
     """Return Ku and Pu from the last ``cycles`` periods of a relay record.
 
     Periods are taken between upward crossings of ``setpoint`` (linearly interpolated); the
-    first crossing is skipped as transient.
+    first crossing is skipped as transient. The amplitude is the mean over those cycles of
+    half of each cycle's peak-to-peak. A sampled loop's cycles jitter by a sample or so; the
+    cycle counts as settled when the mean periods of the earlier and the later half of the
+    measured cycles agree within ``PERIOD_SPREAD``.
 
     Raises:
         TuningError: fewer than ``cycles + 2`` crossings, or periods that still drift.
@@ -106,17 +109,22 @@ def limit_cycle(t: FloatArray, y: FloatArray, relay_amplitude: float, setpoint: 
     last = crossings[-(cycles + 1):]
     periods = np.diff(last)
     pu = float(np.mean(periods))
-    spread = float((np.max(periods) - np.min(periods)) / pu)
-    if spread > PERIOD_SPREAD:
+    half = max(1, cycles // 2)
+    drift = float(abs(np.mean(periods[:half]) - np.mean(periods[-half:])) / pu)
+    if drift > PERIOD_SPREAD:
         raise TuningError(
-            f'relay: no steady limit cycle (period spread {100.0 * spread:.1f} % > '
+            f'relay: no steady limit cycle (period drift {100.0 * drift:.1f} % > '
             f'{100.0 * PERIOD_SPREAD:.0f} %); lengthen the experiment')
-    window = (t >= last[0]) & (t <= last[-1])
-    a = 0.5 * float(np.max(y[window]) - np.min(y[window]))
-    if not a > 0.0:
+    spread = float((np.max(periods) - np.min(periods)) / pu)
+    halves = []
+    for a, b in zip(last[:-1], last[1:]):
+        window = (t >= a) & (t <= b)
+        halves.append(0.5 * float(np.max(y[window]) - np.min(y[window])))
+    amp = float(np.mean(halves))
+    if not amp > 0.0:
         raise TuningError('relay: the output does not oscillate')
-    ku = 4.0 * relay_amplitude / (math.pi * a)
-    return RelayResult(ku, pu, a, relay_amplitude, cycles, spread, source, t, y + setpoint)
+    ku = 4.0 * relay_amplitude / (math.pi * amp)
+    return RelayResult(ku, pu, amp, relay_amplitude, cycles, spread, source, t, y + setpoint)
 
 
 def relay_experiment(plant: PlantStep, dt: float, relay_amplitude: float, duration: float,
@@ -213,7 +221,7 @@ def _period_guess(model: LoopModel) -> float:
 
 
 def simulated_vehicle_relay(scenario: Scenario, config: Config, relay_amplitude: float = 0.02,
-                            cycles: int = 4, duration: float | None = None) -> RelayResult:
+                            cycles: int = 8, duration: float | None = None) -> RelayResult:
     """Return the relay experiment on the vehicle of ``scenario`` in the closed-loop simulator.
 
     The scenario's vehicle and sensor timing are kept; the run is on a straight course from
@@ -229,13 +237,19 @@ def simulated_vehicle_relay(scenario: Scenario, config: Config, relay_amplitude:
         raise TuningError(
             f'relay amplitude: {relay_amplitude!r} rad must be below the steering limit '
             f'{scenario.steering.max_angle!r}')
-    model = LoopModel.from_config(config, scenario.speed, schedule=False)
-    period = _period_guess(dataclasses.replace(
-        model, steer_delay=model.steer_delay + scenario.pose_delay + 0.5 / scenario.pose_rate))
+    plant = scenario.vehicle
+    model = LoopModel(speed=scenario.speed, wheelbase=plant.wheelbase,
+                      steer_time_constant=plant.steer_time_constant,
+                      steer_delay=plant.steer_delay + scenario.pose_delay
+                      + 0.5 / scenario.pose_rate,
+                      kp=1.0, ki=0.0, kd=0.0, lookahead=config.lookahead, filter_time=0.0)
+    period = _period_guess(model)
+    # the limit cycle of a sampled, rate-limited loop is slower than the linear guess
+    span = 40.0 * max(period, 20.0 / scenario.pose_rate)
     run = dataclasses.replace(
         scenario, course_points=(), start=StartPose(0.0, -0.01, 0.0),
         pose_noise=PoseNoise(0.0, 0.0, 0), dropouts=(),
-        duration=30.0 * period if duration is None else duration, corridor_width=None)
+        duration=span if duration is None else duration, corridor_width=None)
     relay_cfg = config.replaced({
         'gains.kp': RELAY_KP, 'gains.ki': 0.0, 'gains.kd': 0.0, 'gains.reference_speed': 0.0,
         'integral.method': 'off', 'integral.bound': 0.0, 'feedforward.enabled': False,
