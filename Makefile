@@ -7,8 +7,8 @@
 #
 #   make venv     create/refresh the virtual environment only
 #   make demo     the most complete demonstration that exists (see DEMO_ARGS)
-#   make test     ruff, mypy, then pytest over test/
-#   make lint     ruff and mypy only
+#   make test     the lints, then pytest over test/
+#   make lint     ruff, mypy, ament_flake8, ament_pep257
 #   make fix      let ruff fix what it can (import order, quotes, docstring layout)
 #   make bench    `corridor-pid bench` on this computer
 #   make clean    build outputs and caches (keeps the venvs); distclean removes them too
@@ -53,9 +53,16 @@ $(STAMP): $(BIN)/python $(REQUIREMENTS) setup.py setup.cfg
 demo: $(STAMP)
 	$(BIN)/corridor-pid $(DEMO_ARGS)
 
+# ruff and mypy, then ROS's ament_flake8 and ament_pep257 (they catch a few things ruff has
+# no rule for: continuation-line indents, class attributes named like builtins). The ament
+# tools list every file they check, so their output shows only when they fail.
 lint: $(STAMP)
 	$(BIN)/ruff check .
 	$(BIN)/mypy
+	@out=$$($(BIN)/ament_flake8 corridor_pid setup.py 2>&1) || { echo "$$out"; exit 1; }
+	@out=$$($(BIN)/ament_pep257 corridor_pid setup.py --convention google 2>&1) \
+	  || { echo "$$out"; exit 1; }
+	@echo 'lint: ruff, mypy, ament_flake8, ament_pep257 passed'
 
 # pytest's exit code 5 means no test ran: that is a failure too, said plainly.
 test: lint
