@@ -6,9 +6,10 @@ Timeline of a run over ``[0, duration]``:
 
 - the sensor takes sample ``k`` of the true pose at ``k / pose_rate``; unless it falls in a
   dropout it reaches the controller ``pose_delay`` later, where ``Controller.step(sample,
-  t_arrival)`` runs;
-- the node's timer ticks ``Controller.step(None, t)`` at ``diagnostics.rate`` (the watchdog
-  check), as on the vehicle;
+  t_arrival)`` runs (with ``control.rate > 0`` the sample is kept instead, and a control
+  timer steps on the latest one every ``1 / control.rate``), as the node does;
+- a watchdog timer ticks ``Controller.step(None, t)`` every :func:`watchdog_period`, as the
+  node's does (none in fixed-rate mode when the control timer is the faster);
 - every step's steering command enters the steering actuator's dead-time buffer
   (``vehicle.steer_delay`` of the scenario) and its speed command goes to the speed lag;
 - between these events the plant is advanced exactly for the actuators and by RK4 for the
@@ -18,8 +19,9 @@ Which settings win: the scenario is the plant's truth; the controller runs on it
 configuration (its belief of the vehicle included) except the course and the cruise speed,
 which the scenario's mission sets (:func:`controller_config`).
 
-The trace has one row per pose slot (at the slot's arrival time, whether the sample arrived
-or was lost) plus a first row at t = 0; see :data:`TRACE_COLUMNS`.
+The trace has a first row at t = 0, then one row per control opportunity: per pose slot (at
+the slot's arrival time, whether the sample arrived or was lost), or per control-timer tick
+in fixed-rate mode; see :data:`TRACE_COLUMNS`.
 """
 
 from __future__ import annotations
@@ -37,7 +39,10 @@ from corridor_pid.sim.scenario import Scenario
 from corridor_pid.sim.sensor import PoseSensor
 import numpy as np
 
-__all__ = ['DEFAULT_MAX_STEP', 'TRACE_COLUMNS', 'SimResult', 'controller_config', 'simulate']
+__all__ = [
+    'DEFAULT_MAX_STEP', 'TRACE_COLUMNS', 'SimResult', 'controller_config', 'simulate',
+    'watchdog_period',
+]
 
 TRACE_COLUMNS: tuple[tuple[str, str, str], ...] = (
     ('t', 's', 'time since the start of the run'),
@@ -95,6 +100,15 @@ def controller_config(scenario: Scenario, config: Config) -> Config:
                           'speed and course)') from err
 
 
+def watchdog_period(config: Config) -> float:
+    """Return the node's watchdog timer period [s].
+
+    ``min(watchdog.timeout / 4, 1 / diagnostics.rate)``: the rule of
+    ``corridor_pid.ros.node.watchdog_period``, which this module cannot import (rclpy).
+    """
+    return min(config.watchdog.timeout / 4.0, 1.0 / config.diagnostics.rate)
+
+
 def simulate(scenario: Scenario, config: Config, max_step: float = DEFAULT_MAX_STEP
              ) -> SimResult:
     """Return the closed-loop run of ``scenario`` under the controller ``config``.
@@ -114,8 +128,6 @@ def simulate(scenario: Scenario, config: Config, max_step: float = DEFAULT_MAX_S
     controller = Controller(cfg, enabled=True)
     truth = Course(scenario.course_points)
     duration = scenario.duration
-    tick_period = 1.0 / cfg.diagnostics.rate
-    t = 0.0
     rows: list[tuple[float, ...]] = []
     states: list[str] = []
     steps: list[tuple[float, StepResult]] = []
@@ -148,23 +160,29 @@ def simulate(scenario: Scenario, config: Config, max_step: float = DEFAULT_MAX_S
         return result
 
     n_samples = len(sensor)
-    k = 0                      # next sample to take
-    j = 1                      # next timer tick
     inf = float('inf')
-    if sensor.arrival(0) > 0.0:
+    fixed = cfg.control.rate > 0.0
+    control_period = 1.0 / cfg.control.rate if fixed else inf
+    guard_period = watchdog_period(cfg)
+    if fixed and control_period <= guard_period:
+        guard_period = inf
+    pending: PoseSample | None = None
+    k = 0                      # next sample to take
+    c = 1 if fixed else 0      # next control tick (fixed-rate mode; tick 0 is at t = 0)
+    w = 1                      # next watchdog tick
+    if fixed or sensor.arrival(0) > 0.0:
         record(0.0, False, None)
     while True:
         t_sample = sensor.times[k] if k < n_samples else inf
         t_arrive = in_flight[0][0] if in_flight else inf
-        t_next = min(t_sample, t_arrive, j * tick_period, steering.next_change())
-        if t_next > duration:
-            t_next = duration
-        # Advance the plant to t_next with the actuator targets held.
-        plant.advance(t_next)
-        t = plant.t
-        if t_next == duration and min(t_sample, t_arrive, j * tick_period,
-                                      steering.next_change()) > duration:
+        t_control = c * control_period if fixed else inf
+        t_guard = w * guard_period
+        t_event = min(t_sample, t_arrive, t_control, t_guard, steering.next_change())
+        if t_event > duration:
+            plant.advance(duration)
             break
+        plant.advance(t_event)
+        t = plant.t
         steering.apply_due(t)
         if t_sample == t:
             sample = None if sensor.lost[k] else sensor.measure(k, plant.x, plant.y, plant.yaw)
@@ -172,14 +190,22 @@ def simulate(scenario: Scenario, config: Config, max_step: float = DEFAULT_MAX_S
             k += 1
         while in_flight and in_flight[0][0] == t:
             sample = in_flight.popleft()[1]
-            if sample is not None:
+            if fixed:
+                if sample is not None:
+                    pending = sample
+            elif sample is not None:
                 last = command(t, sample)
                 record(t, True, last)
             else:
                 record(t, False, last)
-        if j * tick_period == t:
+        if t_control == t:
+            last = command(t, pending)
+            pending = None
+            record(t, True, last)
+            c += 1
+        if t_guard == t:
             last = command(t, None)
-            j += 1
+            w += 1
     columns = list(zip(*rows, strict=True))
     trace = {name: np.asarray(col, dtype=float)
              for (name, _, _), col in zip(TRACE_COLUMNS, columns, strict=False)}

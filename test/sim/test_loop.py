@@ -5,7 +5,7 @@
 from __future__ import annotations
 
 from corridor_pid.core.errors import ConfigError
-from corridor_pid.sim.loop import simulate, TRACE_COLUMNS
+from corridor_pid.sim.loop import simulate, TRACE_COLUMNS, watchdog_period
 import numpy as np
 import pytest
 from sim_helpers import params, scenario
@@ -96,6 +96,27 @@ def test_dropout_longer_than_the_watchdog_stops_the_vehicle() -> None:
     assert run.metrics.watchdog_stops == 1
     assert trace['state'][-1] == 'tracking'
     assert trace['speed'][-1] == pytest.approx(1.0, abs=0.02)
+
+
+def test_watchdog_stops_within_timeout_and_one_timer_period() -> None:
+    """The stop comes no later than timeout + watchdog period after the last pose."""
+    sc = scenario(dropouts=[[8.0, 10.0]])
+    cfg = params(watchdog__timeout=0.4, diagnostics__rate=2.0)
+    run = simulate(sc, cfg)
+    assert watchdog_period(cfg) == pytest.approx(0.1)
+    last_pose = max(t for t, result in run.steps if result.accepted and t < 8.5)
+    first_stop = min(t for t, result in run.steps if result.state.value == 'stopped')
+    assert last_pose + 0.4 < first_stop <= last_pose + 0.4 + 0.1 + 1e-9
+
+
+def test_fixed_rate_mode_computes_on_the_control_timer() -> None:
+    """With control.rate the controller computes every 1/rate on the latest pose."""
+    run = simulate(scenario(pose_rate=50.0), params(control__rate=20.0))
+    computed = [t for t, result in run.steps if result.computed]
+    np.testing.assert_allclose(np.diff(computed), 0.05, atol=1e-9)
+    # One row at t = 0 and one per control tick up to 20 s.
+    assert len(run.trace['t']) == 1 + 400
+    assert run.metrics.final_lateral_error < 0.05
 
 
 def test_dropout_shorter_than_the_watchdog_does_not_stop() -> None:
