@@ -220,6 +220,11 @@ class Controller:
                     self.state = _TRACKING
                     self.reset()
                     return self._control(sample, t, h_out, plan)  # type: ignore[arg-type]
+        if state is _TRACKING and not plan.fixed_rate:
+            # Computing on each pose, a timer tick (or a rejected pose) while tracking sends
+            # no command, so the rate and slew limits keep counting from the last command
+            # sent: a watchdog tick must not shrink the allowance of the next pose.
+            self._t_out = t_out
         return self._idle(h_out, plan, accepted)
 
     # -- internals ----------------------------------------------------------------------
@@ -403,7 +408,7 @@ class _Plan:
         'lookahead', 'target_offset', 'derivative_on_error', 'rate_from_odometry',
         'filter_time', 'integral', 'blend_time', 'feedforward', 'trim', 'cruise',
         'slowdown_error', 'lateral_wheelbase', 'max_angle', 'max_rate', 'max_accel',
-        'max_decel', 'max_speed')
+        'max_decel', 'max_speed', 'fixed_rate')
 
     def __init__(self, cfg: Config) -> None:
         """Copy the values out of the nested config."""
@@ -432,6 +437,7 @@ class _Plan:
         self.max_angle, self.max_rate = cfg.steering.max_angle, cfg.steering.max_rate
         self.max_accel, self.max_decel = cfg.speed.max_accel, cfg.speed.max_decel
         self.max_speed = cfg.speed.max
+        self.fixed_rate = cfg.control.rate > 0.0
 
 
 _TRACKING = State.TRACKING
