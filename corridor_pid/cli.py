@@ -217,8 +217,9 @@ def build_parser() -> argparse.ArgumentParser:
         'bag', metavar='BAG', help='rosbag2 bag directory (sqlite3 or MCAP storage)')
     _add_params(replay, 'default: the built-in defaults')
     replay.add_argument(
-        '--pose-topic', metavar='T', default='/pose',
-        help='topic that carries the pose (default: %(default)s)')
+        '--pose-topic', metavar='T',
+        help="topic that carries the pose (default: the bag's only pose-typed topic, "
+             'else /pose)')
     replay.add_argument(
         '--pose-type', choices=POSE_TYPES,
         help='expected message kind of the pose topic (default: the type the bag records)')
