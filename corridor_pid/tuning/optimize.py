@@ -256,9 +256,7 @@ class _Evaluator:
             else:
                 violation, reason = floor_violation(config, self.speeds)
             if violation > 0.0:
-                ev = Evaluation(dict(values), INFEASIBLE + violation, False, reason)
-                self._count(ev)
-                out.append(ev)
+                out.append(Evaluation(dict(values), INFEASIBLE + violation, False, reason))
             else:
                 todo.append((len(out), dict(values), config))
                 out.append(None)
@@ -273,10 +271,16 @@ class _Evaluator:
             n = len(self.scenarios)
             for k, (slot, values, _) in enumerate(todo):
                 mine = tuple(scores[k * n:(k + 1) * n])
-                ev = Evaluation(values, float(sum(s.cost for s in mine)), True, '', mine)
+                out[slot] = Evaluation(values, float(sum(s.cost for s in mine)), True, '',
+                                       mine)
+        done = [ev for ev in out if ev is not None]
+        seen: set[tuple[float, ...]] = set()
+        for ev in done:  # count new candidates in batch order, whatever ran in parallel
+            key = self.key(ev.values)
+            if key not in self.cache and key not in seen:
+                seen.add(key)
                 self._count(ev)
-                out[slot] = ev
-        return [ev for ev in out if ev is not None]
+        return done
 
     def _count(self, ev: Evaluation) -> None:
         self.cache[self.key(ev.values)] = ev
@@ -349,7 +353,8 @@ def optimize_gains(scenarios: Sequence[Scenario], start: Config, free: Sequence[
         start_values = {n: _value(start, n) for n in free}
         x0 = _to_unit(start_values, free)
         start_values = _from_unit(x0, free) if _outside(start_values) else start_values
-        n_sobol = min(2 ** int(math.ceil(math.log2(8 * len(free)))), evaluations // 3)
+        # a power of two (Sobol balance), about 8 per free value, at most a third of the budget
+        n_sobol = 2 ** int(math.floor(math.log2(min(8 * len(free), evaluations // 3))))
         sample = qmc.Sobol(d=len(free), scramble=True, seed=seed).random(n_sobol) \
             if n_sobol > 0 else np.zeros((0, len(free)))
         batch = [start_values] + [_from_unit(x, free) for x in sample]
