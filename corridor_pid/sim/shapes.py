@@ -9,7 +9,9 @@ points so that a course is written down by its geometry::
 
 An arc of radius ``r`` turning through ``angle`` (positive left) is sampled with chords no
 longer than ``spacing``; its vertices lie on the arc, so the polyline's vertex curvature
-approaches ``1/r``.
+approaches ``1/r``. Straights are cut into pieces no longer than ``spacing`` too: the course
+interpolates curvature between vertices, so a long single segment before an arc would
+spread the arc's curvature over its whole length.
 """
 
 from __future__ import annotations
@@ -43,7 +45,7 @@ def centreline_points(pieces: Sequence[Straight | Arc], start: tuple[float, floa
         pieces: straights and arcs, in order of travel.
         start: first vertex (m).
         heading: direction of travel at the first vertex (rad).
-        spacing: longest chord used to sample an arc (m); straights keep their two ends.
+        spacing: longest chord or straight piece between two vertices (m).
         digits: decimal places kept in the output.
 
     """
@@ -51,9 +53,13 @@ def centreline_points(pieces: Sequence[Straight | Arc], start: tuple[float, floa
     points = [[round(x, digits), round(y, digits)]]
     for piece in pieces:
         if isinstance(piece, Straight):
+            count = max(1, math.ceil(piece.length / spacing))
+            for i in range(1, count + 1):
+                d = piece.length * i / count
+                points.append([round(x + d * math.cos(heading), digits),
+                               round(y + d * math.sin(heading), digits)])
             x += piece.length * math.cos(heading)
             y += piece.length * math.sin(heading)
-            points.append([round(x, digits), round(y, digits)])
             continue
         radius, angle = piece
         side = 1.0 if angle >= 0.0 else -1.0
