@@ -25,6 +25,10 @@ class TuningError(CorridorPidError):
     """A tuning or margin computation cannot be carried out."""
 
 
+class DemoError(CorridorPidError):
+    """The demo cannot run (a child process exited, discovery timed out, bad output folder)."""
+
+
 class MissingExtraError(CorridorPidError):
     """An optional dependency of an offline tool is not installed."""
 
