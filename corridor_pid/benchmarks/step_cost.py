@@ -3,8 +3,9 @@
 """Cost of one ``Controller.step`` against a bare three-term PID loop, in the same process.
 
 The bare loop is the least a Python controller object does per sample: a method call that
-computes P, I and D on a scalar error with dt from the stamps (:class:`BarePid`). The ratio says what the rest of the step (projection,
-filters, limits, speed policy, states, the result record) costs on this computer.
+computes P, I and D on a scalar error with dt from the stamps (:class:`BarePid`). The ratio
+says what the rest of the step (projection, filters, limits, speed policy, states, the
+result record) costs on this computer.
 """
 
 from __future__ import annotations

@@ -9,16 +9,25 @@ accepts the node accepts, and whatever it refuses the node refuses.
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 import dataclasses
+from dataclasses import dataclass
 import difflib
 import math
-from collections.abc import Mapping
-from dataclasses import dataclass
 
 from corridor_pid.core.errors import ConfigError
 from corridor_pid.core.params import (
-    BOOL, DEFAULTS, DOUBLE, DOUBLE_ARRAY, INTEGER, LIVE_NAMES, PARAMS, SPECS, STRING,
-    ParamSpec, ParamValue,
+    BOOL,
+    DEFAULTS,
+    DOUBLE,
+    DOUBLE_ARRAY,
+    INTEGER,
+    LIVE_NAMES,
+    PARAMS,
+    ParamSpec,
+    ParamValue,
+    SPECS,
+    STRING,
 )
 
 __all__ = [
@@ -110,7 +119,7 @@ class SpeedSettings:
 
     cruise: float
     slowdown_error: float
-    max: float
+    max: float  # noqa: A003 - the contract's name (speed.max)
     max_accel: float
     max_decel: float
     max_lateral_accel: float

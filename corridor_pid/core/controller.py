@@ -47,8 +47,10 @@ class State(enum.Enum):
 
 
 class PoseSample(NamedTuple):
-    """A pose in the course frame: stamp [s], x, y [m], yaw [rad]; optional speed [m/s],
-    yaw_rate [rad/s]."""
+    """A pose in the course frame: stamp [s], x, y [m], yaw [rad], frame, speed, yaw rate.
+
+    ``speed`` [m/s] and ``yaw_rate`` [rad/s] are present for odometry poses only.
+    """
 
     stamp: float
     x: float

@@ -17,8 +17,8 @@ segment is found by walking from the last one, so a projection costs amortised O
 from __future__ import annotations
 
 import bisect
-import math
 from collections.abc import Sequence
+import math
 from typing import NamedTuple
 
 __all__ = ['Course', 'Projection', 'wrap_angle']
@@ -34,13 +34,13 @@ def wrap_angle(angle: float) -> float:
 
 
 class Projection(NamedTuple):
-    """A pose seen from the course: y [m], theta [rad], kappa [1/m], s [m], segment index."""
+    """A pose seen from the course: y [m], theta [rad], kappa [1/m], s [m], segment."""
 
     lateral: float
     heading: float
     curvature: float
     progress: float
-    index: int
+    segment: int
 
 
 class Course:
@@ -126,8 +126,10 @@ class Course:
         return self._interp(self._vk, self._segment_at(s), s, False)
 
     def curvature_ahead(self, index: int, s: float) -> float:
-        """Return the curvature at progress ``s`` (1/m), searching forward from segment
-        ``index`` (the projection's): O(1) for a lookahead of a few segments."""
+        """Return the curvature at progress ``s`` (1/m) found from segment ``index``.
+
+        The search walks from the projection's segment: O(1) for a short lookahead.
+        """
         if self.straight:
             return 0.0
         starts = self._s0

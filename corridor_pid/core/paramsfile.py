@@ -10,16 +10,15 @@ first, the node's own section over it, as ROS does.
 
 from __future__ import annotations
 
-import math
 from collections.abc import Mapping
+import math
 from pathlib import Path
 from typing import Any
 
-import yaml
-
 from corridor_pid.core.config import Config, config_from_params
 from corridor_pid.core.errors import ConfigError
-from corridor_pid.core.params import SPECS, ParamValue
+from corridor_pid.core.params import ParamValue, SPECS
+import yaml
 
 NODE_NAME = 'corridor_pid'
 

@@ -4,7 +4,7 @@
 
 from __future__ import annotations
 
-import sys
 from pathlib import Path
+import sys
 
 sys.path.insert(0, str(Path(__file__).parent))

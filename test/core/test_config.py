@@ -7,14 +7,16 @@ from __future__ import annotations
 import math
 from pathlib import Path
 
-import pytest
-
 from corridor_pid.core.config import config_from_params, default_config, live_change_names
 from corridor_pid.core.errors import ConfigError
 from corridor_pid.core.params import PARAMS, SPECS
 from corridor_pid.core.paramsfile import (
-    load_params_file, params_from_file, params_yaml, write_params_file,
+    load_params_file,
+    params_from_file,
+    params_yaml,
+    write_params_file,
 )
+import pytest
 
 
 def test_defaults_are_valid_and_complete() -> None:

@@ -6,11 +6,10 @@ from __future__ import annotations
 
 import math
 
-import pytest
 from core_helpers import bicycle_run, config
-
 from corridor_pid.core.controller import Controller, PoseSample, State
 from corridor_pid.core.errors import ConfigError
+import pytest
 
 
 def _tracking(cfg=None) -> Controller:  # type: ignore[no-untyped-def]
@@ -91,7 +90,7 @@ def test_large_error_slows_down() -> None:
 
 
 def test_states_enable_wait_track_disable() -> None:
-    """disabled -> waiting -> tracking -> disabled, with ramps to zero while not tracking."""
+    """Disabled -> waiting -> tracking -> disabled, with ramps to zero while not tracking."""
     ctl = Controller(config(), enabled=False)
     assert ctl.step(PoseSample(0.0, 0.0, 0.0, 0.0), 0.0).state == State.DISABLED
     ctl.enable(True, 0.0)

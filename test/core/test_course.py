@@ -6,10 +6,9 @@ from __future__ import annotations
 
 import math
 
+from corridor_pid.core.course import Course, wrap_angle
 import numpy as np
 import pytest
-
-from corridor_pid.core.course import Course, wrap_angle
 
 
 def _arc(radius: float, sweep: float, n: int) -> list[tuple[float, float]]:
@@ -104,10 +103,10 @@ def test_local_search_recovers_after_a_jump() -> None:
     course = Course([(float(i), 0.0) for i in range(200)])
     course.project(1.0, 0.0, 0.0)
     p = course.project(150.5, -0.2, 0.0)
-    assert p.index == 150
+    assert p.segment == 150
     assert p.lateral == pytest.approx(-0.2)
     course.reset_hint()
-    assert course.project(10.5, 0.1, 0.0).index == 10
+    assert course.project(10.5, 0.1, 0.0).segment == 10
 
 
 def test_wrap_angle() -> None:

@@ -6,14 +6,13 @@ from __future__ import annotations
 
 import math
 
-import numpy as np
-import pytest
 from core_helpers import config
-from scipy import signal
-
 from corridor_pid.core.config import Gains, IntegralSettings
 from corridor_pid.core.controller import Controller, PoseSample
 from corridor_pid.core.pid import Integrator, RateFilter, scheduled_gains
+import numpy as np
+import pytest
+from scipy import signal
 
 KP, KI, KD, TF = 0.8, 0.3, 0.25, 0.05
 

@@ -12,11 +12,10 @@ from __future__ import annotations
 
 import math
 
-from hypothesis import HealthCheck, given, settings
-from hypothesis import strategies as st
-
 from corridor_pid.core.config import config_from_params
 from corridor_pid.core.controller import Controller, PoseSample, State
+from hypothesis import given, HealthCheck, settings
+from hypothesis import strategies as st
 
 finite = st.floats(min_value=-50.0, max_value=50.0, allow_nan=False)
 wild = st.one_of(finite, st.sampled_from([math.nan, math.inf, -math.inf, 1e12, -1e12]))
