@@ -15,7 +15,15 @@ from collections.abc import Iterator
 import os
 
 from corridor_pid.ros import isolation
+from hypothesis import settings
 import pytest
+
+# Property tests: a quick default for development; the CI profile (CI=true, as CI runs
+# .ci/run) generates at least 10,000 sequences per property.
+settings.register_profile('dev', max_examples=300, deadline=None)
+settings.register_profile('ci', max_examples=10_000, deadline=None)
+settings.load_profile(os.environ.get('HYPOTHESIS_PROFILE') or (
+    'ci' if os.environ.get('CI') == 'true' else 'dev'))
 
 
 def pytest_configure(config: pytest.Config) -> None:

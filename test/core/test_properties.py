@@ -40,7 +40,7 @@ events = st.lists(st.tuples(
 ), min_size=1, max_size=60)
 
 
-@settings(suppress_health_check=[HealthCheck.too_slow], deadline=None)
+@settings(suppress_health_check=[HealthCheck.too_slow])
 @given(params=configs, seq=events)
 def test_commands_stay_finite_and_within_limits(params: dict[str, object],
                                                 seq: list[tuple[float, ...]]) -> None:
