@@ -72,13 +72,18 @@ def write_plot(result: SimResult, path: str | Path) -> None:
     plt = pyplot()
     trace, scenario, config = result.trace, result.scenario, result.config
     t = trace['t']
-    fig, axes = plt.subplots(4, 1, figsize=(9.0, 12.0),
-                             gridspec_kw={'height_ratios': [1.6, 1.0, 1.0, 1.0]})
+    centre, left, right = _course_lines(result)
+    # Height of the to-scale course panel from the drawing's proportions (inches).
+    outline = np.vstack([line for line in (centre, left, right) if line is not None]
+                        + [np.column_stack([trace['x'], trace['y']])])
+    spans = np.maximum(np.ptp(outline, axis=0), 1e-6)
+    top_height = float(np.clip(7.5 * spans[1] / spans[0] + 0.9, 1.6, 6.0))
+    fig, axes = plt.subplots(4, 1, figsize=(9.0, top_height + 7.8),
+                             gridspec_kw={'height_ratios': [top_height, 2.6, 2.6, 2.6]})
     top, lat, steer, speed = axes
     title = scenario.name or 'scenario'
     fig.suptitle(f'{title}: simulated run ({scenario.duration:g} s)')
 
-    centre, left, right = _course_lines(result)
     top.plot(centre[:, 0], centre[:, 1], color='0.6', linestyle='--', linewidth=1.0,
              label='centreline')
     if left is not None and right is not None:
@@ -87,12 +92,8 @@ def write_plot(result: SimResult, path: str | Path) -> None:
     top.plot(trace['x'], trace['y'], color='tab:blue', linewidth=1.5, label='rear axle path')
     top.plot(trace['x'][:1], trace['y'][:1], 'o', color='tab:blue')
     top.set_xlabel('x [m]')
-    spans = np.ptp(np.vstack([centre, np.column_stack([trace['x'], trace['y']])]), axis=0)
-    if spans[1] >= 0.2 * spans[0]:
-        top.set_aspect('equal', adjustable='datalim')
-        top.set_ylabel('y [m]')
-    else:  # a long, narrow course: stretch across to see the corridor
-        top.set_ylabel('y [m] (stretched)')
+    top.set_ylabel('y [m]')
+    top.set_aspect('equal', adjustable='box')   # to scale; the next panel magnifies y
     top.legend(loc='best', fontsize='small')
 
     band = settling_band(float(trace['lateral'][0]))
