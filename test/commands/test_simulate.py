@@ -9,6 +9,7 @@ import csv
 import json
 import math
 from pathlib import Path
+import re
 import sys
 from typing import Any
 
@@ -120,7 +121,7 @@ def test_bad_scenario_gives_one_error_line(tmp_path: Path, capsys: pytest.Captur
     lines = captured.err.splitlines()
     assert len(lines) == 1 and lines[0].startswith('ERROR: ')
     assert str(scenario) in lines[0]
-    assert __import__('re').search(message, lines[0])
+    assert re.search(message, lines[0])
     assert not trace_file.exists()
 
 
