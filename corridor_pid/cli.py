@@ -224,9 +224,11 @@ def build_parser() -> argparse.ArgumentParser:
         '--pose-type', choices=POSE_TYPES,
         help='expected message kind of the pose topic (default: the type the bag records)')
     replay.add_argument(
-        '--time-source', choices=('header', 'receive'), default='header',
-        help='stamps that drive the controller: message header stamps (default) or the '
-             "bag's receive times (for poses recorded with empty stamps)")
+        '--stamps', '--time-source', dest='stamps', choices=('header', 'receive'),
+        default='header',
+        help='pose stamps the controller sees: the message header stamps (default; the '
+             "bag's receive times are the node clock) or the receive times (for poses "
+             'recorded with empty or out-of-order stamps)')
     replay.add_argument(
         '--corridor-width', metavar='W', type=_positive_float,
         help='corridor width [m], for the `diverged` metric (null without it)')

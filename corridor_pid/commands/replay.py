@@ -1,0 +1,162 @@
+# SPDX-License-Identifier: Apache-2.0
+# Copyright 2026 corridor_pid contributors
+"""``corridor-pid replay BAG``: score a recorded run through the controller core.
+
+Usage: ``corridor-pid replay BAG [--params F] [--pose-topic T] [--pose-type K] [--stamps S]
+[--corridor-width W] [--write OUT] [--json] [--plot FILE.png]``.
+
+Reads the pose topic of a rosbag2 bag (a directory; sqlite3 or MCAP storage), drives the
+controller core with the params file's settings at the recorded times (enabled from the
+first pose, watchdog ticks between poses as on the node), and prints the metrics of the
+recorded path on the params file's course. Where the bag holds the commands that were sent
+(``steering_angle``/``target_speed``, ``cmd_vel``), it also prints how far the commands
+these params give differ from them. ``--write`` writes a new bag with every original topic
+plus the replayed commands under ``/replay/``; ``--plot`` a PNG (needs matplotlib).
+
+Output: a readable summary, or one JSON object (``--json``) with every metric of DESIGN.md
+section 5 plus ``bag``, ``pose_topic``, ``pose_type``, ``stamps``, ``poses``, ``duration``,
+``rejected_poses``, ``comparison`` (per channel: ``topic``, ``count``, ``rms_difference``,
+``max_difference``, ``first_divergence_time``, ``tolerance``) and ``written``.
+
+Exit status 0; 1 with one ``ERROR:`` line for a missing, truncated or corrupt bag, a missing
+or empty pose topic, a type that is not a pose, out-of-order stamps, a bad params file, an
+output that exists, or a missing optional library (rosbags, matplotlib). Nothing is written
+unless the replay succeeded.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+from pathlib import Path
+import sys
+from typing import TYPE_CHECKING
+
+from corridor_pid.core.config import Config, default_config
+from corridor_pid.core.errors import CorridorPidError, MissingExtraError
+from corridor_pid.core.paramsfile import load_params_file
+from corridor_pid.sim.metrics import METRIC_UNITS
+
+if TYPE_CHECKING:
+    from corridor_pid.replay.report import ReplayReport
+
+__all__ = ['run', 'summary_text']
+
+_UNITS = {'steering': 'rad', 'speed': 'm/s', 'yaw_rate': 'rad/s'}
+
+
+def _metric(value: float | int | bool | None, unit: str) -> str:
+    if value is None:
+        return 'n/a (no --corridor-width)'
+    if isinstance(value, bool):
+        return 'yes' if value else 'no'
+    if isinstance(value, int):
+        return str(value)
+    if unit == '':
+        return f'{100.0 * value:.1f} %'
+    return f'{value:.3f} {unit}'
+
+
+def _number(value: float | None, unit: str) -> str:
+    return '-' if value is None or not math.isfinite(value) else f'{value:.3g} {unit}'
+
+
+def summary_text(report: ReplayReport, params_file: str | None, config: Config) -> str:
+    """Return the readable summary of a replay."""
+    track, run = report.track, report.run
+    g = config.gains
+    computed = int(run.computed.sum())
+    lines = [
+        f'bag         {report.bag}: {track.topic} ({track.kind}), {len(track)} poses over '
+        f'{report.duration:.2f} s, stamps from the {track.stamps} '
+        f"{'stamps' if track.stamps == 'header' else 'times'}",
+        f"controller  {params_file or 'built-in defaults'}: kp {g.kp:g}, ki {g.ki:g}, "
+        f'kd {g.kd:g}, lookahead {config.lookahead:g} m, cruise {config.speed.cruise:g} m/s, '
+        f'watchdog {config.watchdog.timeout:g} s',
+        f'replay      {computed} commands computed, {run.rejected} poses rejected, '
+        f'{run.watchdog_stops} watchdog stop(s)',
+        '',
+        f"{'metric':<34} value",
+    ]
+    for name, value in report.metrics.as_dict().items():
+        lines.append(f'{name:<34} {_metric(value, METRIC_UNITS[name])}')
+    lines.append('')
+    if not report.comparison:
+        lines.append('the bag holds no recorded commands (steering_angle, target_speed, '
+                     'cmd_vel) to compare with')
+    else:
+        lines.append('recorded minus replayed commands')
+        for diff in report.comparison:
+            unit = _UNITS[diff.channel]
+            first = diff.first_divergence_time
+            since = ('never' if first is None else f'from {first:.3f} s')
+            lines.append(
+                f'  {diff.channel:<9} {diff.topic:<20} {diff.compared:>7} compared, rms '
+                f'{_number(diff.rms_difference, unit)}, max {_number(diff.max_difference, unit)}'
+                f'; above {diff.tolerance:g} {unit}: {since}')
+    if report.written is not None:
+        lines.append('')
+        topics = ', '.join(t for t in report.written_counts if t.startswith('/replay/'))
+        lines.append(f'wrote {report.written} (original topics plus {topics})')
+    return '\n'.join(lines)
+
+
+def _config(params_file: str | None) -> Config:
+    return default_config() if params_file is None else load_params_file(params_file)
+
+
+def _require_rosbags() -> None:
+    try:
+        import rosbags  # noqa: F401
+    except ImportError as err:
+        raise MissingExtraError('rosbags', 'offline') from err
+
+
+def _checked_output(path: str | None, what: str) -> None:
+    """Refuse an output whose folder is missing (before reading anything)."""
+    if path is None:
+        return
+    folder = Path(path).resolve().parent
+    if not folder.is_dir():
+        raise CorridorPidError(f'{what} {path!r}: folder {str(folder)!r} does not exist')
+
+
+def run(args: argparse.Namespace) -> int:
+    """Replay ``args.bag`` under ``args.params``; print (and write); return the status."""
+    params_file: str | None = getattr(args, 'params', None)
+    plot_file: str | None = getattr(args, 'plot', None)
+    write: str | None = getattr(args, 'write', None)
+    stamps: str = getattr(args, 'stamps', None) or getattr(args, 'time_source', None) or 'header'
+    try:
+        _require_rosbags()
+        if plot_file is not None:
+            from corridor_pid.sim.plot import pyplot
+            pyplot()  # fail on a missing matplotlib before anything runs
+        _checked_output(plot_file, '--plot')
+        _checked_output(write, '--write')
+        if write is not None and Path(write).exists():
+            raise CorridorPidError(f'--write {write!r} exists already; choose a new name')
+        config = _config(params_file)
+        from corridor_pid.replay.report import replay_bag
+        report = replay_bag(
+            args.bag, config, pose_topic=getattr(args, 'pose_topic', None),
+            pose_kind=getattr(args, 'pose_type', None), stamps=stamps,
+            corridor_width=getattr(args, 'corridor_width', None), write=write)
+        if plot_file is not None:
+            from corridor_pid.replay.plot import write_replay_plot
+            try:
+                write_replay_plot(report, config, plot_file)
+            except OSError as err:
+                raise CorridorPidError(
+                    f'cannot write {plot_file!r}: {err.strerror or err}') from err
+    except CorridorPidError as err:
+        print(f'ERROR: {err}', file=sys.stderr)
+        return 1
+    if getattr(args, 'json', False):
+        print(json.dumps(report.as_dict(), allow_nan=False))
+    else:
+        print(summary_text(report, params_file, config))
+        if plot_file is not None:
+            print(f'wrote plot to {plot_file}')
+    return 0

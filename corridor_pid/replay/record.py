@@ -1,0 +1,168 @@
+# SPDX-License-Identifier: Apache-2.0
+# Copyright 2026 corridor_pid contributors
+"""Write a run (poses and the commands sent) as a rosbag2 bag, as a vehicle would record it.
+
+Used to record simulated runs, by the benchmark, and by tests. The poses go to one pose
+topic (``PoseStamped``, ``PoseWithCovarianceStamped`` or ``Odometry``); the commands to the
+node's output topics in the pose topic's namespace: ``steering_angle`` and ``target_speed``
+(``std_msgs/Float64``) and ``cmd_vel`` (``TwistStamped`` or ``Twist``). Every message is
+built and serialized with rosbags' standard Jazzy type store.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+import math
+from pathlib import Path
+from typing import Any, NamedTuple
+
+from corridor_pid.core.errors import ReplayError
+from corridor_pid.replay.bag import (
+    FLOAT64_TYPE,
+    jazzy_typestore,
+    POSE_TYPES,
+    STORAGES,
+    TWIST_STAMPED_TYPE,
+    TWIST_TYPE,
+)
+import numpy as np
+
+__all__ = ['RecordedCommand', 'RecordedPose', 'pose_message', 'write_run_bag']
+
+
+class RecordedPose(NamedTuple):
+    """One pose as recorded: receive time and header stamp (ns), pose (m, rad)."""
+
+    receive_ns: int
+    stamp_ns: int
+    x: float
+    y: float
+    yaw: float
+    frame_id: str = 'map'
+    speed: float = 0.0
+    """Odometry twist.linear.x (m/s); ignored by the other pose types."""
+    yaw_rate: float = 0.0
+    """Odometry twist.angular.z (rad/s); ignored by the other pose types."""
+
+
+class RecordedCommand(NamedTuple):
+    """One command as sent: receive time (ns), steering (rad), speed (m/s)."""
+
+    receive_ns: int
+    steering: float
+    speed: float
+
+
+def _stamp(store: Any, ns: int) -> Any:
+    return store.types['builtin_interfaces/msg/Time'](sec=ns // 1_000_000_000,
+                                                      nanosec=ns % 1_000_000_000)
+
+
+def pose_message(pose: RecordedPose, kind: str) -> Any:
+    """Return the rosbags message of ``kind`` ('pose_stamped', ...) for ``pose``."""
+    store = jazzy_typestore()
+    types = store.types
+    header = types['std_msgs/msg/Header'](stamp=_stamp(store, pose.stamp_ns),
+                                          frame_id=pose.frame_id)
+    half = 0.5 * pose.yaw
+    geometry = types['geometry_msgs/msg/Pose'](
+        position=types['geometry_msgs/msg/Point'](x=pose.x, y=pose.y, z=0.0),
+        orientation=types['geometry_msgs/msg/Quaternion'](
+            x=0.0, y=0.0, z=math.sin(half), w=math.cos(half)))
+    if kind == 'pose_stamped':
+        return types[POSE_TYPES[kind]](header=header, pose=geometry)
+    with_cov = types['geometry_msgs/msg/PoseWithCovariance'](
+        pose=geometry, covariance=np.zeros(36, dtype=np.float64))
+    if kind == 'pose_with_covariance':
+        return types[POSE_TYPES[kind]](header=header, pose=with_cov)
+    vector = types['geometry_msgs/msg/Vector3']
+    twist = types['geometry_msgs/msg/TwistWithCovariance'](
+        twist=types['geometry_msgs/msg/Twist'](
+            linear=vector(x=pose.speed, y=0.0, z=0.0),
+            angular=vector(x=0.0, y=0.0, z=pose.yaw_rate)),
+        covariance=np.zeros(36, dtype=np.float64))
+    return types[POSE_TYPES[kind]](header=header, child_frame_id='base_link', pose=with_cov,
+                                   twist=twist)
+
+
+def _namespace(topic: str) -> str:
+    return topic.rstrip('/').rpartition('/')[0]
+
+
+def write_run_bag(path: str | Path, poses: Sequence[RecordedPose], *,
+                  pose_kind: str = 'pose_stamped', storage: str = 'sqlite3',
+                  pose_topic: str = '/pose', commands: Sequence[RecordedCommand] = (),
+                  cmd_vel: str | None = 'stamped', wheelbase: float = 0.9) -> dict[str, int]:
+    """Write a new bag with the poses and (optionally) the commands; return counts per topic.
+
+    Args:
+        path: the new bag directory (must not exist).
+        poses: the poses, in receive order.
+        pose_kind: 'pose_stamped', 'pose_with_covariance' or 'odometry'.
+        storage: 'sqlite3' or 'mcap'.
+        pose_topic: topic of the poses; the command topics go in its namespace.
+        commands: commands sent, in receive order; none writes no command topics.
+        cmd_vel: 'stamped' (TwistStamped), 'plain' (Twist) or None (no cmd_vel topic).
+        wheelbase: for cmd_vel's yaw rate speed * tan(steering) / wheelbase (m).
+
+    Raises:
+        ReplayError: bad arguments, or the bag cannot be written.
+
+    """
+    from rosbags.rosbag2 import StoragePlugin, Writer, WriterError
+
+    if pose_kind not in POSE_TYPES:
+        raise ReplayError(f'pose_kind: expected one of {tuple(POSE_TYPES)}, got {pose_kind!r}')
+    if storage not in STORAGES:
+        raise ReplayError(f'storage: expected one of {STORAGES}, got {storage!r}')
+    if cmd_vel not in ('stamped', 'plain', None):
+        raise ReplayError(f"cmd_vel: expected 'stamped', 'plain' or None, got {cmd_vel!r}")
+    store = jazzy_typestore()
+    types = store.types
+    serialize = store.serialize_cdr
+    plugin = StoragePlugin.MCAP if storage == 'mcap' else StoragePlugin.SQLITE3
+    space = _namespace(pose_topic)
+    pose_type = POSE_TYPES[pose_kind]
+    messages: list[tuple[int, int, str, bytes]] = []
+    for k, pose in enumerate(poses):
+        messages.append((pose.receive_ns, k, pose_topic,
+                         bytes(serialize(pose_message(pose, pose_kind), pose_type))))
+    topics = {pose_topic: pose_type}
+    if commands:
+        topics[f'{space}/steering_angle'] = FLOAT64_TYPE
+        topics[f'{space}/target_speed'] = FLOAT64_TYPE
+        twist_type = TWIST_STAMPED_TYPE if cmd_vel == 'stamped' else TWIST_TYPE
+        if cmd_vel is not None:
+            topics[f'{space}/cmd_vel'] = twist_type
+        vector = types['geometry_msgs/msg/Vector3']
+        float64 = types[FLOAT64_TYPE]
+        for k, cmd in enumerate(commands):
+            order = len(poses) + 3 * k
+            messages.append((cmd.receive_ns, order, f'{space}/steering_angle',
+                             bytes(serialize(float64(data=cmd.steering), FLOAT64_TYPE))))
+            messages.append((cmd.receive_ns, order + 1, f'{space}/target_speed',
+                             bytes(serialize(float64(data=cmd.speed), FLOAT64_TYPE))))
+            if cmd_vel is None:
+                continue
+            twist = types[TWIST_TYPE](
+                linear=vector(x=cmd.speed, y=0.0, z=0.0),
+                angular=vector(x=0.0, y=0.0,
+                               z=cmd.speed * math.tan(cmd.steering) / wheelbase))
+            msg = twist if cmd_vel == 'plain' else types[TWIST_STAMPED_TYPE](
+                header=types['std_msgs/msg/Header'](stamp=_stamp(store, cmd.receive_ns),
+                                                    frame_id='base_link'),
+                twist=twist)
+            messages.append((cmd.receive_ns, order + 2, f'{space}/cmd_vel',
+                             bytes(serialize(msg, twist_type))))
+    messages.sort(key=lambda m: (m[0], m[1]))
+    counts = dict.fromkeys(topics, 0)
+    try:
+        with Writer(Path(path), version=9, storage_plugin=plugin) as writer:
+            conns = {topic: writer.add_connection(topic, msgtype, typestore=store)
+                     for topic, msgtype in topics.items()}
+            for ns, _, topic, data in messages:
+                writer.write(conns[topic], ns, data)
+                counts[topic] += 1
+    except WriterError as err:
+        raise ReplayError(f'{str(path)!r}: cannot write the bag ({err})') from err
+    return counts
