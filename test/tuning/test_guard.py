@@ -4,6 +4,10 @@
 
 from __future__ import annotations
 
+from pathlib import Path
+import subprocess
+import sys
+
 from corridor_pid.core.config import Config, default_config
 from corridor_pid.sim.loop import simulate
 from corridor_pid.sim.scenario import Scenario, scenario_from_mapping
@@ -100,3 +104,17 @@ def test_standing_still_at_zero_cruise_has_nothing_to_check() -> None:
     cfg = default_config().replaced({'speed.cruise': 0.0})
     verdict = guard_verdict(cfg, 0.0)
     assert verdict.ok and verdict.margins is None
+
+
+def test_guard_path_needs_numpy_only() -> None:
+    """Importing and running the guard loads neither scipy nor python-control (node path)."""
+    code = ('import sys\n'
+            'from corridor_pid.core.config import default_config\n'
+            'from corridor_pid.tuning.guard import guard_verdict\n'
+            'assert guard_verdict(default_config(), 1.0).ok\n'
+            "print(sorted(m for m in ('scipy', 'control', 'matplotlib', 'tqdm') "
+            'if m in sys.modules))\n')
+    root = Path(__file__).resolve().parents[2]  # `python -c` imports from the cwd first
+    done = subprocess.run([sys.executable, '-c', code], capture_output=True, text=True,
+                          check=True, timeout=120, cwd=root)
+    assert done.stdout.strip() == '[]'
