@@ -7,11 +7,13 @@ extended for projection. :meth:`Course.project` returns the signed lateral offse
 (positive left of the direction of travel), the heading error ``theta`` relative to the
 course tangent, the curvature ``kappa`` (positive turning left) and the progress ``s``.
 
-The tangent heading and the curvature are interpolated linearly between vertices (a vertex
-takes the mean heading of its two segments and the turning angle over the mean segment
-length as curvature). Each segment owns the region between the bisectors of its end
-vertices, so ``y``, ``s``, ``theta`` and ``kappa`` are continuous across joins; the owning
-segment is found by walking from the last one, so a projection costs amortised O(1).
+The tangent heading is interpolated linearly between vertices (a vertex takes the mean
+heading of its two segments); a vertex's turning angle is spread as a tent of curvature
+over plus and minus the shorter adjacent segment, so the turn is conserved and a long
+straight beside a finely sampled arc stays straight. Each segment owns the region between
+the bisectors of its end vertices, so ``y``, ``s`` and ``theta`` are continuous across
+joins; the owning segment is found by walking from the last one, so a projection costs
+amortised O(1).
 """
 
 from __future__ import annotations
@@ -81,15 +83,22 @@ class Course:
         self.length = s
         n = len(lengths)
         # Vertex tangents and curvatures (vertex i joins segments i-1 and i).
+        # A vertex's turn is spread as a tent of curvature over +/- the shorter adjacent
+        # segment (area = turn), so a long straight next to a sampled arc stays straight and
+        # a uniformly sampled arc of radius R has curvature exactly 1/R.
         vert_heading = [headings[0]]
         vert_kappa = [0.0]
+        widths = [1.0]
         for i in range(1, n):
             turn = wrap_angle(headings[i] - headings[i - 1])
+            width = min(lengths[i - 1], lengths[i])
             vert_heading.append(headings[i - 1] + 0.5 * turn)
-            vert_kappa.append(turn / (0.5 * (lengths[i - 1] + lengths[i])))
+            vert_kappa.append(turn / width)
+            widths.append(width)
         vert_heading.append(headings[-1])
         vert_kappa.append(0.0)
-        self._vh, self._vk = vert_heading, vert_kappa
+        widths.append(1.0)
+        self._vh, self._vk, self._vw = vert_heading, vert_kappa, widths
         self._dvh = [wrap_angle(b - a) for a, b in zip(vert_heading[:-1], vert_heading[1:])]
         self._last = n - 1
         # Miter offsets at the vertices: moving by d along them keeps distance d from both
@@ -119,11 +128,23 @@ class Course:
             return a + frac * wrap_angle(b - a)
         return a + frac * (b - a)
 
+    def _kappa(self, i: int, s: float) -> float:
+        """Return the curvature on segment i at progress s: the two end vertices' tents."""
+        into = s - self._s0[i]
+        left = 1.0 - into / self._vw[i]
+        right = 1.0 - (self._len[i] - into) / self._vw[i + 1]
+        kappa = 0.0
+        if left > 0.0:
+            kappa += self._vk[i] * (left if left < 1.0 else 1.0)
+        if right > 0.0:
+            kappa += self._vk[i + 1] * (right if right < 1.0 else 1.0)
+        return kappa
+
     def curvature_at(self, s: float) -> float:
         """Return the course curvature at progress ``s`` (1/m; positive turns left)."""
         if self.straight:
             return 0.0
-        return self._interp(self._vk, self._segment_at(s), s, False)
+        return self._kappa(self._segment_at(s), s)
 
     def curvature_ahead(self, index: int, s: float) -> float:
         """Return the curvature at progress ``s`` (1/m) found from segment ``index``.
@@ -139,7 +160,7 @@ class Course:
             i += 1
         while i > 0 and s < starts[i]:
             i -= 1
-        return self._interp(self._vk, i, s, False)
+        return self._kappa(i, s)
 
     def heading_at(self, s: float) -> float:
         """Return the course tangent heading at progress ``s`` (rad)."""
@@ -223,7 +244,11 @@ class Course:
         lateral = (ox * wx + oy * wy) / (wx * wx + wy * wy)
         frac = 0.0 if lam < 0.0 else 1.0 if lam > 1.0 else lam
         heading = self._vh[i] + frac * self._dvh[i]
-        kappa = self._vk[i] + frac * (self._vk[i + 1] - self._vk[i])
+        into = frac * seg  # the two end vertices' curvature tents (see _kappa)
+        left = 1.0 - into / self._vw[i]
+        right = 1.0 - (seg - into) / self._vw[i + 1]
+        kappa = (self._vk[i] * left if left > 0.0 else 0.0) + (
+            self._vk[i + 1] * right if right > 0.0 else 0.0)
         return _new_projection(Projection, (
             lateral, (yaw - heading + _PI) % _TAU - _PI, kappa, self._s0[i] + lam * seg, i))
 

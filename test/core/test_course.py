@@ -119,3 +119,22 @@ def test_coincident_vertices_raise() -> None:
     """Zero-length segments are refused."""
     with pytest.raises(ValueError, match='coincide'):
         Course([(0.0, 0.0), (0.0, 0.0)])
+
+
+def test_long_straight_beside_an_arc_stays_straight() -> None:
+    """A 20 m straight before a finely sampled arc has no curvature until near the joint.
+
+    The integral of curvature over the course equals the total turn (common practice, no
+    source: the turning angle is the integral of curvature along the path).
+    """
+    radius = 5.0
+    arc = _arc(radius, math.pi / 2, 40)
+    course = Course([(-20.0, 0.0)] + arc)
+    assert course.curvature_at(5.0) == 0.0
+    assert course.curvature_at(19.0) == 0.0
+    assert course.curvature_at(20.0 + 3.0) == pytest.approx(1.0 / radius, rel=0.01)
+    s = np.linspace(0.0, course.length, 200_001)
+    turn = np.trapezoid([course.curvature_at(float(v)) for v in s], s)
+    (x0, y0), (x1, y1) = arc[-2], arc[-1]
+    polyline_turn = math.atan2(y1 - y0, x1 - x0)  # the first segment heads along +x
+    assert turn == pytest.approx(polyline_turn, rel=1e-4)
