@@ -14,6 +14,7 @@ from __future__ import annotations
 import argparse
 from collections.abc import Callable, Sequence
 import importlib
+import os
 import sys
 import textwrap
 
@@ -361,3 +362,9 @@ def main(argv: Sequence[str] | None = None) -> int:
     except KeyboardInterrupt:
         _error('interrupted')
         return 130
+    except BrokenPipeError:
+        # The reader went away (`corridor-pid simulate --json | head`): not an error of
+        # ours. Point stdout at devnull so the interpreter's final flush stays quiet.
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        return 141
