@@ -28,6 +28,7 @@ from typing import NamedTuple
 from corridor_pid.core.config import Config, live_change_names
 from corridor_pid.core.course import Course
 from corridor_pid.core.errors import ConfigError
+from corridor_pid.core.kinematics import arc_step
 from corridor_pid.core.pid import Integrator, RateFilter, scheduled_gains
 from corridor_pid.core.smoothing import AlphaBeta
 
@@ -209,19 +210,26 @@ class Controller:
             self.watchdog_stops += 1
             self._recovery = 0
         if accepted:
-            self._t_accept = t
-            if state is _TRACKING:
-                return self._control(sample, t, h_out, plan)  # type: ignore[arg-type]
+            t_accept, self._t_accept = self._t_accept, t
             if state is State.WAITING:
                 self.state = _TRACKING
                 self.reset()
-                return self._control(sample, t, h_out, plan)  # type: ignore[arg-type]
-            if state is State.STOPPED:
+            elif state is State.STOPPED:
                 self._recovery += 1
                 if self._recovery >= plan.recovery_count:
                     self.state = _TRACKING
                     self.reset()
-                    return self._control(sample, t, h_out, plan)  # type: ignore[arg-type]
+            if self.state is _TRACKING:
+                result = self._control(sample, t, h_out, plan)  # type: ignore[arg-type]
+                if result is not None:
+                    return result
+                # Finite, but so large (or so close in time) that the law overflowed:
+                # reject the pose as a non-finite one, forget the history, keep the state.
+                self.state, self._t_accept, accepted = state, t_accept, False
+                self.rejected += 1
+                self.reset()
+                if state is State.STOPPED:
+                    self._recovery -= 1
         if state is _TRACKING and not plan.fixed_rate:
             # Computing on each pose, a timer tick (or a rejected pose) while tracking sends
             # no command, so the rate and slew limits keep counting from the last command
@@ -235,7 +243,9 @@ class Controller:
         """Return whether ``sample`` is accepted; handle a large backwards stamp jump.
 
         Finiteness is checked on the sum of the fields: any NaN or infinity (or values so
-        large that they overflow) rejects the pose.
+        large that they overflow) rejects the pose. A finite pose that still drives the law
+        to a non-finite output (e.g. a position of 1e308 m, or a huge jump within a
+        nanosecond) is rejected too, after the fact, in :meth:`step`.
         """
         stamp = sample.stamp
         total = stamp + sample.x + sample.y + sample.yaw
@@ -280,7 +290,8 @@ class Controller:
         return -(y + cfg.lookahead * math.sin(th))
 
     def _control(self, sample: PoseSample, t: float, h_out: float, plan: _Plan
-                 ) -> StepResult:
+                 ) -> StepResult | None:
+        """Return the command computed from an accepted pose; None if the law overflowed."""
         stamp = sample.stamp
         prev = self._prev_stamp
         h = 0.0 if prev is None else stamp - prev
@@ -290,7 +301,7 @@ class Controller:
             age = min(max(t - stamp, 0.0), plan.max_age)
             if age > 0.0:
                 v = self._speed if sample.speed is None else sample.speed
-                x, yy, yaw = _predicted_pose(x, yy, yaw, v, self._steer, plan.wheelbase, age)
+                x, yy, yaw = arc_step(x, yy, yaw, v, self._steer, plan.wheelbase, age)
         course = self._course
         y, th, kappa, s, index = course.project(x, yy, yaw)
         if plan.smoothing:
@@ -329,6 +340,8 @@ class Controller:
         ff = math.atan(plan.wheelbase * course.curvature_ahead(index, s + lookahead)) \
             if plan.feedforward else 0.0
         u = plan.trim + ff + p + integ + d + blend
+        if not _isfinite(u):
+            return None
         steer, angle_sat, rate_sat = self._limited_steer(u, h_out, plan)
         self._excess = steer - u if (angle_sat or rate_sat) else 0.0
         # Speed policy: cruise, slowed on error and by the lateral-acceleration limit.
@@ -444,17 +457,6 @@ class _Plan:
 
 _TRACKING = State.TRACKING
 _new_result = tuple.__new__
-
-
-def _predicted_pose(x: float, y: float, yaw: float, v: float, steer: float,
-                    wheelbase: float, age: float) -> tuple[float, float, float]:
-    """Return the pose ``age`` [s] later under the kinematic bicycle at constant inputs."""
-    w = v * math.tan(steer) / wheelbase
-    if abs(w) < 1e-9:
-        return x + v * age * math.cos(yaw), y + v * age * math.sin(yaw), yaw
-    yaw2 = yaw + w * age
-    r = v / w
-    return x + r * (math.sin(yaw2) - math.sin(yaw)), y - r * (math.cos(yaw2) - math.cos(yaw)), yaw2
 
 
 def _error_rate(v: float, yaw_rate: float, y: float, th: float, kappa: float,

@@ -33,6 +33,7 @@ from corridor_pid.core.config import Config, config_from_params
 from corridor_pid.core.controller import Controller, PoseSample, StepResult
 from corridor_pid.core.course import Course
 from corridor_pid.core.errors import ConfigError
+from corridor_pid.core.timing import watchdog_period
 from corridor_pid.sim.metrics import Metrics, metrics_from
 from corridor_pid.sim.plant import DEFAULT_MAX_STEP, Plant
 from corridor_pid.sim.scenario import Scenario
@@ -98,15 +99,6 @@ def controller_config(scenario: Scenario, config: Config) -> Config:
     except ConfigError as err:
         raise ConfigError(f"{err} (speed.cruise and course.points come from the scenario's "
                           'speed and course)') from err
-
-
-def watchdog_period(config: Config) -> float:
-    """Return the node's watchdog timer period [s].
-
-    ``min(watchdog.timeout / 4, 1 / diagnostics.rate)``: the rule of
-    ``corridor_pid.ros.node.watchdog_period``, which this module cannot import (rclpy).
-    """
-    return min(config.watchdog.timeout / 4.0, 1.0 / config.diagnostics.rate)
 
 
 def simulate(scenario: Scenario, config: Config, max_step: float = DEFAULT_MAX_STEP
