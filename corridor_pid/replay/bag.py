@@ -49,7 +49,9 @@ STORAGES = ('sqlite3', 'mcap')
 """rosbag2 storage identifiers this package reads and writes."""
 
 # What rosbags, sqlite3 and the file system raise on an unreadable, truncated or corrupt bag.
-_READ_ERRORS: tuple[type[BaseException], ...] = (OSError, sqlite3.Error, struct.error)
+# (ValueError covers undecodable text in the metadata, OverflowError absurd sizes.)
+_READ_ERRORS: tuple[type[BaseException], ...] = (
+    OSError, sqlite3.Error, struct.error, ValueError, OverflowError, EOFError)
 
 
 class RawStream(NamedTuple):
@@ -77,9 +79,12 @@ def _reader_error() -> type[BaseException]:
     return ReaderError
 
 
+@functools.cache
 def bag_errors() -> tuple[type[BaseException], ...]:
     """Return the exception types that mean "this bag cannot be read"."""
-    return (_reader_error(), *_READ_ERRORS)
+    import apsw  # rosbags' SQLite binding
+
+    return (_reader_error(), apsw.Error, *_READ_ERRORS)
 
 
 def _reason(err: BaseException) -> str:

@@ -66,7 +66,7 @@ def _messages(stream: RawStream) -> list[Any]:
     for index, raw in enumerate(stream.data):
         try:
             out.append(deserialize(raw, stream.msgtype))
-        except (SerdeError, ValueError, IndexError, struct.error) as err:
+        except (SerdeError, ValueError, IndexError, OverflowError, struct.error) as err:
             reason = ' '.join(str(err).split()).rstrip('.')
             raise ReplayError(
                 f'{stream.topic!r}: message {index} cannot be decoded ({reason})') from err

@@ -59,8 +59,9 @@ class PoseTrack(NamedTuple):
 
 def yaw_from(qx: np.ndarray, qy: np.ndarray, qz: np.ndarray, qw: np.ndarray) -> np.ndarray:
     """Return the yaw (rad, in (-pi, pi]) of unit quaternions (ZYX Euler angles)."""
-    return np.asarray(np.arctan2(2.0 * (qw * qz + qx * qy), 1.0 - 2.0 * (qy * qy + qz * qz)),
-                      dtype=np.float64)
+    with np.errstate(over='ignore', invalid='ignore'):  # garbage in: NaN out, rejected later
+        yaw = np.arctan2(2.0 * (qw * qz + qx * qy), 1.0 - 2.0 * (qy * qy + qz * qz))
+    return np.asarray(yaw, dtype=np.float64)
 
 
 def _undecodable(topic: str, index: int, err: BaseException) -> ReplayError:
@@ -91,7 +92,7 @@ def decoded_pose_fields(stream: RawStream) -> tuple[PoseFields, list[str]]:
     for index, raw in enumerate(stream.data):
         try:
             msg: Any = deserialize(raw, msgtype)
-        except (SerdeError, ValueError, IndexError, struct.error) as err:
+        except (SerdeError, ValueError, IndexError, OverflowError, struct.error) as err:
             raise _undecodable(stream.topic, index, err) from err
         header = msg.header
         pose = msg.pose if kind == 'pose_stamped' else msg.pose.pose
@@ -147,14 +148,14 @@ def pose_track(stream: RawStream, stamps: str = 'header') -> PoseTrack:
     if early.size:
         k = int(early[0]) + 1
         raise ReplayError(
-            f'{topic!r}: message {k} was received at {time[k]!r} s, before the one before '
-            f'it ({time[k - 1]!r} s); the bag is out of order')
+            f'{topic!r}: message {k} was received at {float(time[k])!r} s, before the one '
+            f'before it ({float(time[k - 1])!r} s); the bag is out of order')
     if stamps == 'receive':
         same = _first_not_newer(receive_ns)
         if same is not None:
             raise ReplayError(
                 f'{topic!r}: messages {same - 1} and {same} were received at the same time '
-                f'({time[same]!r} s); replay with --stamps header')
+                f'({float(time[same])!r} s); replay with --stamps header')
     if stamps == 'header':
         sec, nanosec = fields['sec'], fields['nanosec']
         if not np.any(sec) and not np.any(nanosec):
@@ -165,8 +166,8 @@ def pose_track(stream: RawStream, stamps: str = 'header') -> PoseTrack:
         back = _first_not_newer(stamp)
         if back is not None:
             raise ReplayError(
-                f'{topic!r}: message {back} has header stamp {stamp[back]!r} s, not newer '
-                f'than the one before ({stamp[back - 1]!r} s); out-of-order stamps '
+                f'{topic!r}: message {back} has header stamp {float(stamp[back])!r} s, not '
+                f'newer than the one before ({float(stamp[back - 1])!r} s); out-of-order stamps '
                 '(replay in arrival order with --stamps receive)')
     else:
         stamp = time
