@@ -210,6 +210,22 @@ class CorridorPidNode(Node):
         """The controller this node drives."""
         return self._controller
 
+    def warn_unapplied(self, expected: Config) -> None:
+        """Warn when the parameters in force differ from what the ROS arguments give.
+
+        ROS applies a params-file section only when its name matches the node's full name
+        (or ``/**``); a file written for ``corridor_pid`` does not reach ``/cart/corridor_pid``.
+        """
+        want = expected.as_params()
+        got = self._controller.config.as_params()
+        differ = [name for name in want if want[name] != got[name]]
+        if differ:
+            name = differ[0]
+            self._log.warning(
+                f'{len(differ)} value(s) from the params file are not in force, e.g. {name} '
+                f'(file {want[name]!r}, node {got[name]!r}); name the section '
+                f"'{self.get_fully_qualified_name()}' or '/**' in the file")
+
     def log_info(self, text: str) -> None:
         """Log ``text`` at info level under the node's name."""
         self._log.info(text)
@@ -458,7 +474,7 @@ def main(args: Sequence[str] | None = None) -> int:
         _error(f'unknown argument {plain[0]!r} (ROS arguments go after --ros-args; see -h)')
         return 2
     try:
-        startup_config(ros_args, NODE_NAME)
+        expected = startup_config(ros_args, NODE_NAME)
     except ConfigError as err:
         _error(str(err))
         return 1
@@ -470,18 +486,20 @@ def main(args: Sequence[str] | None = None) -> int:
 
     previous = {sig: signal.signal(sig, on_signal) for sig in (signal.SIGINT, signal.SIGTERM)}
     context = Context()
-    try:
-        rclpy.init(args=argv, context=context, signal_handler_options=SignalHandlerOptions.NO)
-    except Exception as err:  # noqa: BLE001 - rcl errors have no public type
-        _error(f'ROS could not start: {str(err).splitlines()[0]}')
-        return 1
     node: CorridorPidNode | None = None
     try:
+        try:
+            rclpy.init(args=argv, context=context,
+                       signal_handler_options=SignalHandlerOptions.NO)
+        except Exception as err:  # noqa: BLE001 - rcl errors have no public type
+            _error(f'ROS could not start: {str(err).splitlines()[0]}')
+            return 1
         try:
             node = CorridorPidNode(context=context)
         except ConfigError as err:
             _error(str(err))
             return 1
+        node.warn_unapplied(expected)
         executor = SingleThreadedExecutor(context=context)
         executor.add_node(node)
         try:
