@@ -13,10 +13,15 @@ from __future__ import annotations
 
 from collections.abc import Iterator
 import os
+from pathlib import Path
+import sys
 
 from corridor_pid.ros import isolation
 from hypothesis import settings
 import pytest
+
+# Shared test helpers at the top of test/ (e.g. reference_gains) import by name.
+sys.path.insert(0, str(Path(__file__).parent))
 
 # Property tests: a quick default for development; the CI profile (CI=true, as CI runs
 # .ci/run) generates at least 10,000 sequences per property.

@@ -41,16 +41,16 @@ INF = math.inf
 
 PARAMS: tuple[ParamSpec, ...] = (
     # --- gains (live) ---
-    ParamSpec('gains.kp', DOUBLE, 0.6, 'rad/m',
+    ParamSpec('gains.kp', DOUBLE, 0.8, 'rad/m',
               'Proportional gain on the lateral error e.', True, 0.0, 50.0),
     ParamSpec('gains.ki', DOUBLE, 0.0, 'rad/(m*s)',
               'Integral gain on e (0 = no integral action).', True, 0.0, 50.0),
-    ParamSpec('gains.kd', DOUBLE, 0.25, 'rad*s/m',
+    ParamSpec('gains.kd', DOUBLE, 0.05, 'rad*s/m',
               'Derivative gain on the rate of the measured part of e.', True, 0.0, 50.0),
     ParamSpec('gains.reference_speed', DOUBLE, 0.0, 'm/s',
               'Speed at which the gains are stated; > 0 scales them with speed so the loop '
               'keeps its margins (0 = no scheduling).', True, 0.0, 30.0),
-    ParamSpec('lookahead', DOUBLE, 1.0, 'm',
+    ParamSpec('lookahead', DOUBLE, 1.3, 'm',
               'Lookahead distance L in e = -((y - target_offset) + L*sin(theta)).',
               True, 0.0, 20.0),
     ParamSpec('target_offset', DOUBLE, 0.0, 'm',
@@ -70,7 +70,7 @@ PARAMS: tuple[ParamSpec, ...] = (
               'How the rate is obtained: difference of successive poses, or odometry '
               '(speed and yaw rate of an Odometry pose, when present).', True,
               choices=('difference', 'odometry')),
-    ParamSpec('derivative.filter_time', DOUBLE, 0.05, 's',
+    ParamSpec('derivative.filter_time', DOUBLE, 0.15, 's',
               'Time constant of the first-order filter on the D term (0 = unfiltered).',
               True, 0.0, 10.0),
     ParamSpec('retune.blend_time', DOUBLE, 1.0, 's',
@@ -78,7 +78,7 @@ PARAMS: tuple[ParamSpec, ...] = (
               low_open=True),
     ParamSpec('feedforward.enabled', BOOL, True, '',
               'Add atan(wheelbase*kappa(s + lookahead)) for the course curvature.', True),
-    ParamSpec('smoothing.enabled', BOOL, False, '',
+    ParamSpec('smoothing.enabled', BOOL, True, '',
               'Smooth the lateral offset and heading error with an alpha-beta filter.', True),
     ParamSpec('smoothing.alpha', DOUBLE, 0.5, '',
               'Alpha-beta filter position gain (0, 1].', True, 0.0, 1.0, low_open=True),

@@ -9,21 +9,25 @@ from pathlib import Path
 
 import control
 from corridor_pid.cli import main
-from corridor_pid.core.config import default_config
 from corridor_pid.core.paramsfile import write_params_file
 import numpy as np
 import pytest
+from reference_gains import REFERENCE_GAINS, reference_config
 
 
 def _params(tmp_path: Path, text: str) -> str:
+    """Write the reference gains in a '/**' section and ``text`` in the node's own."""
     path = tmp_path / 'params.yaml'
-    path.write_text('corridor_pid:\n  ros__parameters:\n' + text, encoding='utf-8')
+    reference = ''.join(f'    {name}: {str(value).lower()}\n'
+                        for name, value in REFERENCE_GAINS.items())
+    path.write_text('/**:\n  ros__parameters:\n' + reference
+                    + 'corridor_pid:\n  ros__parameters:\n' + text, encoding='utf-8')
     return str(path)
 
 
 def _defaults(tmp_path: Path) -> str:
     path = tmp_path / 'defaults.yaml'
-    write_params_file(path, default_config())
+    write_params_file(path, reference_config())
     return str(path)
 
 

@@ -21,7 +21,8 @@ def _pid_config(method: str = 'off'):  # type: ignore[no-untyped-def]
     """Return a config whose limits never bind on small errors (straight course, L = 0)."""
     return config(gains__kp=KP, gains__ki=KI, gains__kd=KD, derivative__filter_time=TF,
                   derivative__source='error', lookahead=0.0, integral__method=method,
-                  integral__bound=1.5, steering__max_angle=1.5, steering__max_rate=20.0)
+                  integral__bound=1.5, steering__max_angle=1.5, steering__max_rate=20.0,
+                  smoothing__enabled=False)
 
 
 def _controller_output(errors: np.ndarray, h: float) -> np.ndarray:

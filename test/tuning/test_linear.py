@@ -7,11 +7,11 @@ from __future__ import annotations
 import math
 
 import control
-from corridor_pid.core.config import default_config
 from corridor_pid.core.errors import TuningError
 from corridor_pid.tuning.linear import LoopModel, pade_coefficients
 import numpy as np
 import pytest
+from reference_gains import reference_config
 from scipy import integrate, signal
 from tuning_helpers import MODELS
 
@@ -94,7 +94,7 @@ def test_linear_plant_matches_the_nonlinear_bicycle_for_small_inputs() -> None:
 def test_from_config_uses_the_scheduled_gains() -> None:
     """With reference_speed > 0 the model carries the gains the controller puts in force."""
     # Common practice, no source: kp unchanged, kd x v0/v, ki x v/v0 (distance domain).
-    cfg = default_config().replaced({'gains.reference_speed': 1.0, 'gains.ki': 0.2})
+    cfg = reference_config().replaced({'gains.reference_speed': 1.0, 'gains.ki': 0.2})
     fast = LoopModel.from_config(cfg, 2.0)
     assert (fast.kp, fast.ki, fast.kd) == pytest.approx((0.6, 0.4, 0.125))
     plain = LoopModel.from_config(cfg, 2.0, schedule=False)
@@ -104,4 +104,4 @@ def test_from_config_uses_the_scheduled_gains() -> None:
 def test_model_rejects_a_vehicle_at_rest_naming_the_value() -> None:
     """Speed 0 has no lateral dynamics; the error names the key and the value."""
     with pytest.raises(TuningError, match=r'speed: must be > 0 .*0\.0'):
-        LoopModel.from_config(default_config(), 0.0)
+        LoopModel.from_config(reference_config(), 0.0)

@@ -7,7 +7,6 @@ from __future__ import annotations
 import dataclasses
 import math
 
-from corridor_pid.core.config import default_config
 from corridor_pid.core.errors import TuningError
 from corridor_pid.sim.loop import simulate
 from corridor_pid.sim.scenario import Scenario, scenario_from_mapping
@@ -22,6 +21,7 @@ from corridor_pid.tuning.optimize import (
 )
 import numpy as np
 import pytest
+from reference_gains import reference_config
 from scipy import integrate
 
 
@@ -41,7 +41,7 @@ SET = (_cart(0.3, 1.0, 0.01), _cart(-0.2, 1.4))
 def test_tracking_term_is_the_mean_squared_offset() -> None:
     """The tracking term equals (1/T) int y^2 dt by scipy's trapezoid rule."""
     # Source: scipy.integrate.trapezoid as the reference quadrature.
-    result = simulate(SET[0], default_config())
+    result = simulate(SET[0], reference_config())
     t, y = result.trace['t'], result.trace['lateral']
     score = scenario_score(result, CostWeights())
     assert score.tracking == pytest.approx(integrate.trapezoid(y * y, t) / (t[-1] - t[0]),
@@ -52,7 +52,7 @@ def test_tracking_term_is_the_mean_squared_offset() -> None:
 
 def test_divergence_and_overshoot_are_penalised() -> None:
     """A run that leaves the corridor pays the divergence weight."""
-    cfg = default_config().replaced({'gains.kd': 0.0, 'lookahead': 0.0, 'gains.kp': 3.0})
+    cfg = reference_config().replaced({'gains.kd': 0.0, 'lookahead': 0.0, 'gains.kp': 3.0})
     long_run = dataclasses.replace(_cart(0.3, 1.0), duration=30.0)
     score = scenario_score(simulate(long_run, cfg), CostWeights())
     assert score.metrics['diverged'] is True
@@ -61,8 +61,8 @@ def test_divergence_and_overshoot_are_penalised() -> None:
 
 def test_floor_violation_matches_the_guard() -> None:
     """Zero exactly when the guard accepts the gains at every speed given."""
-    good = default_config()
-    bad = default_config().replaced({'gains.ki': 0.3})
+    good = reference_config()
+    bad = reference_config().replaced({'gains.ki': 0.3})
     assert floor_violation(good, [1.0, 1.4]) == (0.0, '')
     amount, reason = floor_violation(bad, [1.0, 1.4])
     assert amount > 0.0 and reason == guard_verdict(bad, 1.0).reason
@@ -70,7 +70,7 @@ def test_floor_violation_matches_the_guard() -> None:
 
 def test_candidates_below_the_floors_are_not_simulated() -> None:
     """A candidate below the floors costs INFEASIBLE plus its shortfall, with the reason."""
-    evs = evaluate_candidates(SET, default_config(), ('kp', 'ki', 'kd'),
+    evs = evaluate_candidates(SET, reference_config(), ('kp', 'ki', 'kd'),
                               [{'kp': 0.6, 'ki': 0.0, 'kd': 0.25},
                                {'kp': 0.6, 'ki': 2.0, 'kd': 0.25}])
     assert evs[0].feasible and len(evs[0].scores) == 2 and evs[0].cost < 1.0
@@ -80,7 +80,7 @@ def test_candidates_below_the_floors_are_not_simulated() -> None:
 
 def test_optimiser_improves_meets_floors_and_is_deterministic_across_workers() -> None:
     """Same seed, 1 or 2 workers: same gains; lower cost than the start; floors met."""
-    start = default_config()
+    start = reference_config()
     one = optimize_gains(SET, start, ('kp', 'kd'), seed=5, jobs=1, evaluations=30)
     two = optimize_gains(SET, start, ('kp', 'kd'), seed=5, jobs=2, evaluations=30)
     assert one.best.values == two.best.values and one.best.cost == two.best.cost
@@ -93,15 +93,15 @@ def test_optimiser_improves_meets_floors_and_is_deterministic_across_workers() -
 
 def test_a_different_seed_samples_differently() -> None:
     """The seed reaches the Sobol sample: another seed, another search history."""
-    a = optimize_gains(SET, default_config(), ('kp', 'kd'), seed=1, evaluations=12)
-    b = optimize_gains(SET, default_config(), ('kp', 'kd'), seed=2, evaluations=12)
+    a = optimize_gains(SET, reference_config(), ('kp', 'kd'), seed=1, evaluations=12)
+    b = optimize_gains(SET, reference_config(), ('kp', 'kd'), seed=2, evaluations=12)
     assert a.history[0] == b.history[0]  # the start point
     assert a.history[1:] != b.history[1:]
 
 
 def test_free_integral_and_lookahead_stay_in_range() -> None:
     """Freeing ki and lookahead keeps them inside the search box and validated."""
-    r = optimize_gains(SET[:1], default_config(), ('kp', 'ki', 'kd', 'lookahead'), seed=0,
+    r = optimize_gains(SET[:1], reference_config(), ('kp', 'ki', 'kd', 'lookahead'), seed=0,
                        evaluations=24)
     assert 0.0 <= r.config.gains.ki <= 1.0 and 0.2 <= r.config.lookahead <= 5.0
     assert math.isfinite(r.best.cost) and np.isfinite(r.history).all()
@@ -114,4 +114,4 @@ def test_free_integral_and_lookahead_stay_in_range() -> None:
 def test_bad_optimiser_arguments(kwargs: dict[str, object], match: str) -> None:
     """Unknown free names and tiny budgets raise TuningError naming the value."""
     with pytest.raises(TuningError, match=match):
-        optimize_gains(SET, default_config(), **kwargs)  # type: ignore[arg-type]
+        optimize_gains(SET, reference_config(), **kwargs)  # type: ignore[arg-type]

@@ -4,11 +4,12 @@
 
 from __future__ import annotations
 
-from corridor_pid.core.config import Config, default_config
+from corridor_pid.core.config import Config
 from corridor_pid.tuning.linear import LoopModel
 from corridor_pid.tuning.margins import Margins, model_margins
 import numpy as np
 import pytest
+from reference_gains import reference_config
 
 SPEEDS = (0.5, 0.75, 1.0, 1.5, 2.0)
 
@@ -25,7 +26,7 @@ def _cart(reference_speed: float, **extra: float) -> Config:
     changes: dict[str, object] = {'gains.ki': 0.1, 'gains.reference_speed': reference_speed,
                                   'speed.max': 2.0}
     changes.update({k.replace('__', '.'): v for k, v in extra.items()})
-    return default_config().replaced(changes)
+    return reference_config().replaced(changes)
 
 
 def test_pure_kinematics_margins_are_speed_invariant_under_scheduling() -> None:
