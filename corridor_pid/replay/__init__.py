@@ -9,7 +9,7 @@ from __future__ import annotations
 
 from corridor_pid.replay.bench import replay_benchmark, ReplayBenchmark
 from corridor_pid.replay.compare import command_differences, CommandDifference
-from corridor_pid.replay.drive import replayed_run, ReplayedRun, watchdog_tick_period
+from corridor_pid.replay.drive import replayed_run, ReplayedRun
 from corridor_pid.replay.record import RecordedCommand, RecordedPose, write_run_bag
 from corridor_pid.replay.report import replay_bag, ReplayReport
 from corridor_pid.replay.track import pose_track, PoseTrack
@@ -27,6 +27,5 @@ __all__ = [
     'replay_bag',
     'replay_benchmark',
     'replayed_run',
-    'watchdog_tick_period',
     'write_run_bag',
 ]

@@ -5,10 +5,12 @@
 The controller is enabled before the first pose (so it tracks from the first accepted one).
 Every pose is one ``Controller.step(sample, t)`` with ``t`` its receive time (the node clock
 at arrival, see :mod:`corridor_pid.replay.track`). Between poses the node's watchdog timer
-ticks ``Controller.step(None, t)`` every :func:`watchdog_tick_period` seconds from the first
-pose, so a gap in the poses trips the watchdog as it did on the vehicle. At equal times the pose
-steps first, as in the simulator. The commands computed from poses do not depend on the
-phase of the ticks (a tick while tracking sends nothing), so they match the node's.
+ticks ``Controller.step(None, t)`` every
+:func:`~corridor_pid.core.timing.watchdog_period` seconds from the first pose, so a gap in
+the poses trips the watchdog as it did on the vehicle. At equal times the pose steps first,
+as in the simulator. While tracking, the commands computed from poses do not depend on the
+phase of the ticks (a tick then sends nothing), so they match the node's; right after a
+watchdog stop they may differ from the node's by one tick's worth of slew.
 """
 
 from __future__ import annotations
@@ -17,19 +19,11 @@ from typing import NamedTuple
 
 from corridor_pid.core.config import Config
 from corridor_pid.core.controller import Controller, PoseSample, StepResult
+from corridor_pid.core.timing import watchdog_period
 from corridor_pid.replay.track import PoseTrack
 import numpy as np
 
-__all__ = ['ReplayedRun', 'replayed_run', 'watchdog_tick_period']
-
-
-def watchdog_tick_period(config: Config) -> float:
-    """Return the node's watchdog timer period (s): min(timeout / 4, 1 / diagnostics.rate).
-
-    The same period as ``corridor_pid.ros.node.watchdog_period`` (which this module cannot
-    import: no rclpy here).
-    """
-    return min(config.watchdog.timeout / 4.0, 1.0 / config.diagnostics.rate)
+__all__ = ['ReplayedRun', 'replayed_run']
 
 
 class ReplayedRun(NamedTuple):
@@ -72,10 +66,10 @@ def replayed_run(track: PoseTrack, config: Config, tick_period: float | None = N
         track: the recorded poses.
         config: the controller configuration (course, gains, limits, ...).
         tick_period: timer period between poses (s); default the node's, see
-            :func:`watchdog_tick_period`.
+            :func:`~corridor_pid.core.timing.watchdog_period`.
 
     """
-    period = watchdog_tick_period(config) if tick_period is None else tick_period
+    period = watchdog_period(config) if tick_period is None else tick_period
     controller = Controller(config, enabled=True)
     step = controller.step
     times: list[float] = track.time.tolist()

@@ -4,7 +4,7 @@
 
 The "vehicle" is the kinematic bicycle about the rear axle (Rajamani, *Vehicle Dynamics and
 Control*, 2nd ed. 2012, ch. 2) with ideal actuators, integrated exactly over each pose
-interval with :func:`corridor_pid.sim.vehicle.arc_step`. The loop runs the controller as
+interval with :func:`corridor_pid.core.kinematics.arc_step`. The loop runs the controller as
 the node does (one step per pose at its arrival, watchdog ticks in between), and records
 what a bag on the vehicle would hold: the poses (header stamp = when measured, receive
 time = when they arrived) and the commands sent (received a little after their pose).
@@ -17,9 +17,9 @@ from typing import NamedTuple
 
 from corridor_pid.core.config import Config, config_from_params
 from corridor_pid.core.controller import Controller, PoseSample
-from corridor_pid.replay.drive import watchdog_tick_period
+from corridor_pid.core.kinematics import arc_step
+from corridor_pid.core.timing import watchdog_period
 from corridor_pid.replay.record import RecordedCommand, RecordedPose
-from corridor_pid.sim.vehicle import arc_step
 
 BASE_NS = 1_700_000_000_000_000_000
 """Bag clock at the start of a recorded run (ns): a plausible wall-clock epoch."""
@@ -62,7 +62,7 @@ def recorded_run(config: Config, *, duration: float = 12.0, rate: float = 50.0,
 
     """
     controller = Controller(config, enabled=True)
-    period = watchdog_tick_period(config)
+    period = watchdog_period(config)
     wheelbase = config.vehicle.wheelbase
     x, y, yaw = 0.0, y0, 0.0
     steer = speed = 0.0

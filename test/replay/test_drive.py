@@ -6,12 +6,12 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from corridor_pid.core.timing import watchdog_period
 from corridor_pid.replay.bag import opened_bag, pose_connections, raw_streams
-from corridor_pid.replay.drive import replayed_run, watchdog_tick_period
+from corridor_pid.replay.drive import replayed_run
 from corridor_pid.replay.record import write_run_bag
 from corridor_pid.replay.track import pose_track, PoseTrack
 import numpy as np
-import pytest
 from replay_helpers import params, recorded_run
 
 CONFIG = params(speed__max_accel=0.3, steering__max_rate=0.4)
@@ -24,12 +24,6 @@ def _track(tmp_path: Path, gap: tuple[float, float] | None) -> PoseTrack:
     with opened_bag(bag) as reader:
         stream = next(iter(raw_streams(reader, pose_connections(reader)).values()))
     return pose_track(stream)
-
-
-def test_tick_period_is_the_nodes() -> None:
-    """min(timeout / 4, 1 / diagnostics.rate), as the node's watchdog timer."""
-    assert watchdog_tick_period(params()) == pytest.approx(0.3 / 4)
-    assert watchdog_tick_period(params(watchdog__timeout=4.0)) == pytest.approx(0.5)
 
 
 def _pose_commands(track: PoseTrack, period: float) -> tuple[np.ndarray, ...]:
@@ -79,7 +73,7 @@ def test_ticks_fill_the_gaps_only(tmp_path: Path) -> None:
     track = _track(tmp_path, (4.0, 6.0))
     run = replayed_run(track, CONFIG)
     ticks = run.time[run.pose_index < 0]
-    period = watchdog_tick_period(CONFIG)
+    period = watchdog_period(CONFIG)
     phase = (ticks - track.time[0]) / period
     np.testing.assert_allclose(phase, np.round(phase), atol=1e-4)  # float time at 1.7e9 s
     assert np.all(np.diff(run.time) >= 0.0)
