@@ -20,7 +20,8 @@ from corridor_pid.replay.bag import jazzy_typestore, POSE_KINDS, RawStream
 from corridor_pid.replay.cdr import fixed_layout_fields, PoseFields
 import numpy as np
 
-__all__ = ['STAMP_SOURCES', 'PoseTrack', 'decoded_pose_fields', 'pose_track', 'yaw_from']
+__all__ = ['STAMP_SOURCES', 'PoseTrack', 'decoded_pose_fields', 'pose_track', 'seconds_of',
+           'yaw_from']
 
 STAMP_SOURCES = ('header', 'receive')
 """Where the pose stamps come from: the message headers or the bag's receive times."""
@@ -39,7 +40,8 @@ class PoseTrack(NamedTuple):
     time: np.ndarray
     """Node clock at arrival: the receive time (s)."""
     stamp: np.ndarray
-    """Stamp the controller sees: the header stamp, or the receive time (s)."""
+    """Stamp the controller sees: the header stamp, or the receive time (s; as a node
+    computes it from a ``builtin_interfaces/Time``)."""
     x: np.ndarray
     """Position x in the pose frame (m)."""
     y: np.ndarray
@@ -62,6 +64,15 @@ def yaw_from(qx: np.ndarray, qy: np.ndarray, qz: np.ndarray, qw: np.ndarray) -> 
     with np.errstate(over='ignore', invalid='ignore'):  # garbage in: NaN out, rejected later
         yaw = np.arctan2(2.0 * (qw * qz + qx * qy), 1.0 - 2.0 * (qy * qy + qz * qz))
     return np.asarray(yaw, dtype=np.float64)
+
+
+def seconds_of(sec: np.ndarray, nanosec: np.ndarray) -> np.ndarray:
+    """Return stamps in seconds from their sec and nanosec fields (s).
+
+    The same arithmetic as a node turning a ``builtin_interfaces/Time`` into seconds
+    (``sec + nanosec * 1e-9``), so a stamp here equals the node's to the last bit.
+    """
+    return np.asarray(sec.astype(np.float64) + nanosec.astype(np.float64) * 1e-9)
 
 
 def _undecodable(topic: str, index: int, err: BaseException) -> ReplayError:
@@ -161,8 +172,7 @@ def pose_track(stream: RawStream, stamps: str = 'header') -> PoseTrack:
         if not np.any(sec) and not np.any(nanosec):
             raise ReplayError(
                 f'{topic!r}: every header stamp is zero; replay with --stamps receive')
-        # The same arithmetic as a node turning a builtin_interfaces/Time into seconds.
-        stamp: np.ndarray = sec.astype(np.float64) + nanosec.astype(np.float64) * 1e-9
+        stamp = seconds_of(sec, nanosec)
         back = _first_not_newer(stamp)
         if back is not None:
             raise ReplayError(
@@ -170,7 +180,7 @@ def pose_track(stream: RawStream, stamps: str = 'header') -> PoseTrack:
                 f'newer than the one before ({float(stamp[back - 1])!r} s); out-of-order stamps '
                 '(replay in arrival order with --stamps receive)')
     else:
-        stamp = time
+        stamp = seconds_of(receive_ns // 1_000_000_000, receive_ns % 1_000_000_000)
     speed = fields['vx'] if kind == 'odometry' else None
     yaw_rate = fields['wz'] if kind == 'odometry' else None
     yaw = yaw_from(fields['qx'], fields['qy'], fields['qz'], fields['qw'])
