@@ -83,6 +83,8 @@ class SimResult:
     steps: tuple[tuple[float, StepResult], ...]
     """(node time [s], result) of every ``Controller.step`` call, in order."""
     metrics: Metrics
+    samples: tuple[PoseSample | None, ...] = ()
+    """The pose each step of ``steps`` took (None for a timer tick), for recording."""
 
 
 def controller_config(scenario: Scenario, config: Config) -> Config:
@@ -123,6 +125,7 @@ def simulate(scenario: Scenario, config: Config, max_step: float = DEFAULT_MAX_S
     rows: list[tuple[float, ...]] = []
     states: list[str] = []
     steps: list[tuple[float, StepResult]] = []
+    samples: list[PoseSample | None] = []
     in_flight: deque[tuple[float, PoseSample | None]] = deque()
     last: StepResult | None = None
 
@@ -147,6 +150,7 @@ def simulate(scenario: Scenario, config: Config, max_step: float = DEFAULT_MAX_S
     def command(now: float, sample: PoseSample | None) -> StepResult:
         result = controller.step(sample, now)
         steps.append((now, result))
+        samples.append(sample)
         steering.command(now, result.steering)
         drive.command(result.speed)
         return result
@@ -205,4 +209,4 @@ def simulate(scenario: Scenario, config: Config, max_step: float = DEFAULT_MAX_S
     metrics = metrics_from(trace['t'], trace['lateral'], trace['speed'], states,
                            trace['angle_saturated'], trace['rate_saturated'],
                            trace['computed'], scenario.corridor_width)
-    return SimResult(scenario, cfg, trace, tuple(steps), metrics)
+    return SimResult(scenario, cfg, trace, tuple(steps), metrics, tuple(samples))
