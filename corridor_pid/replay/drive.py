@@ -5,16 +5,20 @@
 The controller is enabled before the first pose (so it tracks from the first accepted one).
 Every pose is one ``Controller.step(sample, t)`` with ``t`` its receive time (the node clock
 at arrival, see :mod:`corridor_pid.replay.track`). Between poses the node's watchdog timer
-ticks ``Controller.step(None, t)`` every
-:func:`~corridor_pid.core.timing.watchdog_period` seconds from the first pose, so a gap in
-the poses trips the watchdog as it did on the vehicle. At equal times the pose steps first,
-as in the simulator. While tracking, the commands computed from poses do not depend on the
-phase of the ticks (a tick then sends nothing), so they match the node's; right after a
-watchdog stop they may differ from the node's by one tick's worth of slew.
+ticks ``Controller.step(None, t)`` at the multiples of
+:func:`~corridor_pid.core.timing.watchdog_period` on the bag clock (where the node's timer
+runs under sim time), so a gap in the poses trips the watchdog as it did on the vehicle.
+At equal times the pose steps first, as in the simulator.
+
+While tracking, the commands computed from poses do not depend on the phase of the ticks
+(a tick then sends nothing). Right after a watchdog stop they can: the first commands are
+slew-limited from the last ramp-down tick, so a node whose timer ran at another phase
+differs from the replay by at most one tick interval of slew until the limits let go.
 """
 
 from __future__ import annotations
 
+import math
 from typing import NamedTuple
 
 from corridor_pid.core.config import Config
@@ -85,9 +89,10 @@ def replayed_run(track: PoseTrack, config: Config, tick_period: float | None = N
     results: list[StepResult] = []
     step_times: list[float] = []
     indices: list[int] = []
-    t0 = times[0] if n else 0.0
-    ticks = 1
-    next_tick = t0 + period
+    # The node's timer runs on multiples of its period from clock zero (a timer made
+    # before the first /clock, under sim time); the first tick after the first pose:
+    ticks = math.floor(times[0] / period) + 1 if n else 1
+    next_tick = ticks * period
     for i in range(n):
         t = times[i]
         while next_tick < t:
@@ -95,7 +100,7 @@ def replayed_run(track: PoseTrack, config: Config, tick_period: float | None = N
             step_times.append(next_tick)
             indices.append(-1)
             ticks += 1
-            next_tick = t0 + ticks * period
+            next_tick = ticks * period
         results.append(step(PoseSample(stamps[i], xs[i], ys[i], yaws[i], frames[i],
                                        speeds[i], yaw_rates[i]), t))
         step_times.append(t)

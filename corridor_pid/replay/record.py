@@ -2,7 +2,9 @@
 # Copyright 2026 corridor_pid contributors
 """Write a run (poses and the commands sent) as a rosbag2 bag, as a vehicle would record it.
 
-Used to record simulated runs, by the benchmark, and by tests. The poses go to one pose
+Used to record simulated runs (:func:`sim_recording` turns a
+:class:`~corridor_pid.sim.loop.SimResult` into what a bag on the vehicle would hold), by the
+benchmark, and by tests. The poses go to one pose
 topic (``PoseStamped``, ``PoseWithCovarianceStamped`` or ``Odometry``); the commands to the
 node's output topics in the pose topic's namespace: ``steering_angle`` and ``target_speed``
 (``std_msgs/Float64``) and ``cmd_vel`` (``TwistStamped`` or ``Twist``). Every message is
@@ -14,7 +16,7 @@ from __future__ import annotations
 from collections.abc import Sequence
 import math
 from pathlib import Path
-from typing import Any, NamedTuple
+from typing import Any, NamedTuple, TYPE_CHECKING
 
 from corridor_pid.core.errors import ReplayError
 from corridor_pid.replay.bag import (
@@ -27,7 +29,10 @@ from corridor_pid.replay.bag import (
 )
 import numpy as np
 
-__all__ = ['RecordedCommand', 'RecordedPose', 'pose_message', 'write_run_bag']
+if TYPE_CHECKING:
+    from corridor_pid.sim.loop import SimResult
+
+__all__ = ['RecordedCommand', 'RecordedPose', 'pose_message', 'sim_recording', 'write_run_bag']
 
 
 class RecordedPose(NamedTuple):
@@ -51,6 +56,41 @@ class RecordedCommand(NamedTuple):
     receive_ns: int
     steering: float
     speed: float
+
+
+def sim_recording(result: SimResult, start_ns: int = 10_000_000_000
+                  ) -> tuple[list[RecordedPose], list[RecordedCommand]]:
+    """Return the poses and commands a bag recorded next to the node would hold for a run.
+
+    Every pose the controller took becomes a pose received at its step time with its
+    stamp as header stamp; every command the node would have sent becomes a command
+    received at the same time: the command of each pose that computed one, and the
+    ramp-down of each watchdog tick while stopped. Times are shifted by ``start_ns``
+    (the simulator starts at 0; ROS time 0 means "no clock yet"). The Odometry twist of a
+    pose is the speed and yaw rate last commanded (the simulated drive follows them).
+
+    Args:
+        result: a simulated run (its ``samples`` aligned with its ``steps``).
+        start_ns: bag time of the simulator's t = 0 (ns).
+
+    """
+    wheelbase = result.config.vehicle.wheelbase
+    poses: list[RecordedPose] = []
+    commands: list[RecordedCommand] = []
+    steer = speed = 0.0
+    for (t, step), sample in zip(result.steps, result.samples, strict=True):
+        ns = start_ns + round(t * 1e9)
+        if sample is not None:
+            poses.append(RecordedPose(
+                ns, start_ns + round(sample.stamp * 1e9), sample.x, sample.y, sample.yaw,
+                sample.frame_id or 'map', speed, speed * math.tan(steer) / wheelbase))
+            if not step.computed:
+                continue
+        elif step.state.value != 'stopped':
+            continue
+        steer, speed = step.steering, step.speed
+        commands.append(RecordedCommand(ns, steer, speed))
+    return poses, commands
 
 
 def _stamp(store: Any, ns: int) -> Any:

@@ -16,10 +16,11 @@ Two paces:
   node's ``get_parameters`` service and waits for the answer. The node's executor serves
   the service only after the pose that arrived before the request, so when the answer is
   in, the node has taken the pose at that clock; the next ``/clock`` cannot overtake it.
-  Inside gaps between poses ``/clock`` advances in steps of at most ``clock_step`` so the
-  node's watchdog timer runs as it would have. This pace is deterministic: the node sees
-  the clock and stamps the offline replay (``corridor-pid replay``) uses, so the commands
-  agree with it message for message (see the tests).
+  Between poses ``/clock`` also visits every multiple of ``clock_step`` (each taken
+  before the next), so the node's watchdog timer ticks where it would have. This pace is
+  deterministic: the node sees the clock, stamps and ticks the offline replay
+  (``corridor-pid replay``) uses, so the commands agree with it message for message (see
+  the tests).
 * ``sim_time=False``: the poses go out at the recorded pace (divided by ``rate``) on the
   wall clock; the node uses its own clock. Realistic, but not repeatable.
 
@@ -272,7 +273,7 @@ def _prime(player: _Player, msg_class: Any, first_ns: int, sim_time: bool) -> in
 def play_bag(bag: str | Path, *, namespace: str = '', node_name: str = NODE_NAME,
              pose_topic: str | None = None, pose_kind: str | None = None,
              stamps: str = 'header', sim_time: bool = True, rate: float = 1.0,
-             clock_step: float = 0.01, node_pose_topic: str | None = None,
+             clock_step: float = 0.005, node_pose_topic: str | None = None,
              timeout: float = DEFAULT_TIMEOUT,
              alive: Callable[[], None] | None = None) -> Playback:
     """Play the pose topic of ``bag`` into a running controller node; return its answers.
@@ -288,7 +289,9 @@ def play_bag(bag: str | Path, *, namespace: str = '', node_name: str = NODE_NAME
         sim_time: lock-step on ``/clock`` (the node runs with ``use_sim_time: true``);
             False plays at the recorded pace on the wall clock.
         rate: speed-up of the recorded pace when ``sim_time`` is False.
-        clock_step: largest ``/clock`` step inside gaps between poses (s).
+        clock_step: between poses ``/clock`` also visits every multiple of this (s), so the
+            node's timers fire on time; when the node's watchdog period is a multiple of it,
+            at exactly the times the offline replay ticks.
         node_pose_topic: the node's pose topic (default ``<namespace>/pose``).
         timeout: wall seconds any single wait may take.
         alive: called while waiting; raise from it to stop early (e.g. the node process
@@ -357,10 +360,13 @@ def _play(player: _Player, track: PoseTrack, raws: list[bytes], msg_class: Any,
             message = deserialize_message(raw, msg_class)
             message.header.stamp = _time_msg(ns)
         if sim_time:
-            while ns - last_ns > step_ns:
-                last_ns += step_ns
-                player.publish_clock(last_ns)
-                player.drain()
+            # Every multiple of clock_step on the way, each taken before the next, so the
+            # node's timers fire where they would have (at their period's multiples).
+            grid = (last_ns // step_ns + 1) * step_ns
+            while grid < ns:
+                player.publish_clock(grid)
+                player.sync()
+                grid += step_ns
             player.publish_clock(ns)
             last_ns = ns
             player.pose_pub.publish(message)

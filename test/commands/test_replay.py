@@ -37,7 +37,7 @@ def test_summary_text(bag: Path, capsys: pytest.CaptureFixture[str]) -> None:
     assert main(['replay', str(bag)]) == 0
     out, err = capsys.readouterr()
     assert err == ''
-    assert '/pose (pose_stamped), 451 poses over 10.00 s' in out
+    assert '/pose (pose_stamped), 450 poses over 9.98 s' in out
     for name in METRICS:
         assert name in out
     assert 'watchdog_stops                     1' in out
@@ -57,7 +57,7 @@ def test_json_with_other_params_and_width(bag: Path, tmp_path: Path,
     for name in METRICS:
         assert name in data
     assert data['diverged'] is False
-    assert data['pose_topic'] == '/pose' and data['poses'] == 451
+    assert data['pose_topic'] == '/pose' and data['poses'] == 450
     steering = data['comparison']['steering']
     assert steering['first_divergence_time'] is not None
     assert steering['max_difference'] > steering['tolerance']

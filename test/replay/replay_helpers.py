@@ -1,34 +1,26 @@
 # SPDX-License-Identifier: Apache-2.0
 # Copyright 2026 corridor_pid contributors
-"""Recorded runs for the replay tests: a closed loop of the core controller and a bicycle.
+"""Recorded runs for the replay tests: the simulator's closed loop, as a bag would hold it.
 
-The "vehicle" is the kinematic bicycle about the rear axle (Rajamani, *Vehicle Dynamics and
-Control*, 2nd ed. 2012, ch. 2) with ideal actuators, integrated exactly over each pose
-interval with :func:`corridor_pid.core.kinematics.arc_step`. The loop runs the controller as
-the node does (one step per pose at its arrival, watchdog ticks in between), and records
-what a bag on the vehicle would hold: the poses (header stamp = when measured, receive
-time = when they arrived) and the commands sent (received a little after their pose).
+A run is :func:`corridor_pid.sim.loop.simulate` on an invented delivery-cart scenario (a
+straight 2.4 m hospital corridor; kinematic bicycle with steering lag, rate limit and drive
+lag; pose sensor with noise, a pipeline delay and an optional dropout), turned by
+:func:`corridor_pid.replay.record.sim_recording` into the poses (header stamp = when
+measured, receive time = when they reached the controller) and the commands the node sent.
 """
 
 from __future__ import annotations
 
-import math
 from typing import NamedTuple
 
 from corridor_pid.core.config import Config, config_from_params
-from corridor_pid.core.controller import Controller, PoseSample
-from corridor_pid.core.kinematics import arc_step
-from corridor_pid.core.timing import watchdog_period
-from corridor_pid.replay.record import RecordedCommand, RecordedPose
+from corridor_pid.replay.record import RecordedCommand, RecordedPose, sim_recording
+from corridor_pid.sim.loop import simulate
+from corridor_pid.sim.scenario import scenario_from_mapping
 
-BASE_NS = 1_700_000_000_000_000_000
-"""Bag clock at the start of a recorded run (ns): a plausible wall-clock epoch."""
-
-POSE_DELAY_NS = 4_000_000
-"""Pose pipeline latency: receive time minus header stamp (ns)."""
-
-COMMAND_DELAY_NS = 1_000_000
-"""Time from a pose's arrival to the recording of its command (ns)."""
+START_NS = 15_000_000_000
+"""Bag clock at the simulator's t = 0 (ns): a multiple of the watchdog period (75 ms with
+the default 0.3 s timeout), so the simulator's timer ticks fall where a node's would."""
 
 
 def params(**changes: object) -> Config:
@@ -42,64 +34,39 @@ class RecordedRun(NamedTuple):
     poses: list[RecordedPose]
     commands: list[RecordedCommand]
     computed: list[bool]
-    """Per pose: whether the node computed (and sent) a command for it."""
-    commands_per_pose: int
-    """How many of ``commands`` answer a pose (the others are watchdog ramp-down ticks)."""
+    """Per pose: whether the controller computed (and the node sent) a command for it."""
+    config: Config
+    """The controller's configuration as run (course and cruise from the scenario)."""
 
 
 def recorded_run(config: Config, *, duration: float = 12.0, rate: float = 50.0,
                  y0: float = 0.4, gap: tuple[float, float] | None = None,
-                 frame_id: str = 'map') -> RecordedRun:
-    """Return a closed-loop run of ``config`` from lateral offset ``y0`` [m].
+                 noise: float = 0.005, seed: int = 7) -> RecordedRun:
+    """Return a simulated run of ``config`` from ``y0`` [m] left of the corridor's centre.
 
     Args:
-        config: the controller (and the vehicle's wheelbase).
+        config: the controller (its vehicle beliefs included); the scenario's cruise speed
+            is its ``speed.cruise``.
         duration: length of the run (s).
         rate: pose rate (Hz).
         y0: initial lateral offset (m).
-        gap: no pose is delivered in [t0, t1) (s from the start): a localization dropout.
-        frame_id: frame of the poses.
+        gap: the pose sensor is silent in [t0, t1) (s): a localization dropout.
+        noise: pose position noise (m; heading noise a tenth of it in rad).
+        seed: noise seed.
 
     """
-    controller = Controller(config, enabled=True)
-    period = watchdog_period(config)
-    wheelbase = config.vehicle.wheelbase
-    x, y, yaw = 0.0, y0, 0.0
-    steer = speed = 0.0
-    poses: list[RecordedPose] = []
-    commands: list[RecordedCommand] = []
-    computed: list[bool] = []
-    count = int(round(duration * rate))
-    dt_ns = int(round(1e9 / rate))
-    first_arrival = None
-    ticks = 1
-    for k in range(count + 1):
-        stamp_ns = BASE_NS + k * dt_ns
-        if k:
-            x, y, yaw = arc_step(x, y, yaw, speed, steer, wheelbase, dt_ns * 1e-9)
-        t_rel = k * dt_ns * 1e-9
-        if gap is not None and gap[0] <= t_rel < gap[1]:
-            continue
-        arrival_ns = stamp_ns + POSE_DELAY_NS
-        t = arrival_ns * 1e-9
-        if first_arrival is None:
-            first_arrival = t
-        while first_arrival + ticks * period < t:
-            tick_t = first_arrival + ticks * period
-            tick = controller.step(None, tick_t)
-            ticks += 1
-            if tick.state.value == 'stopped':  # the node sends the ramp down on its timer
-                steer, speed = tick.steering, tick.speed
-                commands.append(RecordedCommand(round(tick_t * 1e9) + COMMAND_DELAY_NS,
-                                                steer, speed))
-        pose = RecordedPose(arrival_ns, stamp_ns, x, y, yaw, frame_id,
-                            speed, speed * math.tan(steer) / wheelbase)
-        # The stamp in seconds as a node computes it from builtin_interfaces/Time.
-        stamp = stamp_ns // 1_000_000_000 + (stamp_ns % 1_000_000_000) * 1e-9
-        result = controller.step(PoseSample(stamp, x, y, yaw, frame_id), t)
-        poses.append(pose)
-        computed.append(result.computed)
-        if result.computed:
-            steer, speed = result.steering, result.speed
-            commands.append(RecordedCommand(arrival_ns + COMMAND_DELAY_NS, steer, speed))
-    return RecordedRun(poses, commands, computed, sum(computed))
+    scenario = scenario_from_mapping({
+        'vehicle': {'wheelbase': config.vehicle.wheelbase, 'steer_time_constant': 0.08,
+                    'steer_delay': 0.04, 'speed_time_constant': 0.2},
+        'steering': {'max_angle': config.steering.max_angle,
+                     'max_rate': config.steering.max_rate},
+        'corridor_width': 2.4, 'start': {'y': y0}, 'speed': config.speed.cruise,
+        'duration': duration, 'pose_rate': rate, 'pose_delay': 0.004,
+        'pose_noise': {'position': noise, 'heading': noise / 10.0, 'seed': seed},
+        'dropouts': [] if gap is None else [list(gap)],
+    }, 'replay-test cart')
+    result = simulate(scenario, config)
+    poses, commands = sim_recording(result, START_NS)
+    computed = [step.computed for (_, step), sample in zip(result.steps, result.samples)
+                if sample is not None]
+    return RecordedRun(poses, commands, computed, result.config)

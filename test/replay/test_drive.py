@@ -74,7 +74,7 @@ def test_ticks_fill_the_gaps_only(tmp_path: Path) -> None:
     run = replayed_run(track, CONFIG)
     ticks = run.time[run.pose_index < 0]
     period = watchdog_period(CONFIG)
-    phase = (ticks - track.time[0]) / period
+    phase = ticks / period  # multiples of the period on the bag clock, as the node's timer
     np.testing.assert_allclose(phase, np.round(phase), atol=1e-4)  # float time at 1.7e9 s
     assert np.all(np.diff(run.time) >= 0.0)
     assert run.pose_index[run.pose_index >= 0].tolist() == list(range(len(track)))

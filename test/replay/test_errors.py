@@ -11,7 +11,8 @@ from corridor_pid.core.errors import ReplayError
 from corridor_pid.replay.record import pose_message, RecordedPose, write_run_bag
 from corridor_pid.replay.report import replay_bag
 import pytest
-from replay_helpers import BASE_NS, params
+from replay_helpers import params
+from replay_helpers import START_NS as BASE_NS
 from rosbags.rosbag2 import StoragePlugin, Writer
 from rosbags.typesys import get_typestore, Stores
 
