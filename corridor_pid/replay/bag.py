@@ -163,7 +163,7 @@ def _normalised(topic: str) -> str:
 
 
 def pose_connections(reader: Reader, topic: str | None = None,
-                    pose_kind: str | None = None) -> list[Connection]:
+                     pose_kind: str | None = None) -> list[Connection]:
     """Return the connections of the pose topic of an open bag.
 
     Args:

@@ -126,7 +126,8 @@ def _time_msg(seconds_ns: int) -> TimeMsg:
 
 
 def _reliable(depth: int = 1000) -> QoSProfile:
-    return QoSProfile(depth=depth, reliability=ReliabilityPolicy.RELIABLE)  # type: ignore[no-untyped-call]
+    reliable = ReliabilityPolicy.RELIABLE
+    return QoSProfile(depth=depth, reliability=reliable)  # type: ignore[no-untyped-call]
 
 
 def _bag_track(bag: str | Path, pose_topic: str | None, pose_kind: str | None,

@@ -42,8 +42,9 @@ def _assert_same(fast: tuple[dict[str, np.ndarray], list[str]],
 
 @pytest.mark.parametrize('kind', sorted(POSE_TYPES))
 @settings(max_examples=40, deadline=None)
-@given(frame=frames, values=st.lists(st.tuples(finite, finite, finite, finite, finite),
-                                      min_size=1, max_size=6),
+@given(frame=frames,
+       values=st.lists(st.tuples(finite, finite, finite, finite, finite), min_size=1,
+                       max_size=6),
        sec=st.integers(0, 2**31 - 1), nanosec=st.integers(0, 999_999_999))
 def test_fast_path_equals_rosbags(kind: str, frame: str,
                                   values: list[tuple[float, ...]], sec: int,

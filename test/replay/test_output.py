@@ -97,7 +97,8 @@ def test_replayed_bag_holds_the_source_and_the_replay(tmp_path: Path, run: Recor
     assert len(run.poses) < len(steering) < len(run.poses) + 40
     # The replayed steering at each pose's receive time is the one recorded for it.
     recorded = {c.receive_ns: c.steering for c in run.commands}
-    at_poses = [(ns, msg.data) for ns, msg in steering if ns in recorded]  # type: ignore[attr-defined]
+    at_poses = [(ns, msg.data)  # type: ignore[attr-defined]
+                for ns, msg in steering if ns in recorded]
     assert len(at_poses) == len(run.commands)
     assert all(abs(value - recorded[ns]) < 1e-12 for ns, value in at_poses)
     times = [ns for _, ns, _ in written]

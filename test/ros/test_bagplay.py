@@ -29,10 +29,10 @@ from corridor_pid.ros.bagplay import play_bag, Playback
 from corridor_pid.ros.testing import NodeProcess, start_node
 import numpy as np
 import pytest
-from ros_helpers import node_env
 
 sys.path.insert(0, str(Path(__file__).parents[1] / 'replay'))
 from replay_helpers import params, recorded_run, RecordedRun  # noqa: E402
+from ros_helpers import node_env  # noqa: E402
 
 pytestmark = pytest.mark.dds
 
