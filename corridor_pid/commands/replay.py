@@ -69,8 +69,8 @@ def summary_text(report: ReplayReport, params_file: str | None, config: Config) 
     computed = int(run.computed.sum())
     lines = [
         f'bag         {report.bag}: {track.topic} ({track.kind}), {len(track)} poses over '
-        f'{report.duration:.2f} s, stamps from the {track.stamps} '
-        f"{'stamps' if track.stamps == 'header' else 'times'}",
+        f'{report.duration:.2f} s, '
+        + ('header stamps' if track.stamps == 'header' else 'receive times as stamps'),
         f"controller  {params_file or 'built-in defaults'}: kp {g.kp:g}, ki {g.ki:g}, "
         f'kd {g.kd:g}, lookahead {config.lookahead:g} m, cruise {config.speed.cruise:g} m/s, '
         f'watchdog {config.watchdog.timeout:g} s',

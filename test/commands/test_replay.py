@@ -120,3 +120,13 @@ def test_receive_stamps_flag(bag: Path, capsys: pytest.CaptureFixture[str]) -> N
     for flag in ('--stamps', '--time-source'):
         assert main(['replay', str(bag), flag, 'receive', '--json']) == 0
         assert json.loads(capsys.readouterr().out)['stamps'] == 'receive'
+
+
+def test_missing_rosbags_names_the_extra(bag: Path, monkeypatch: pytest.MonkeyPatch,
+                                         capsys: pytest.CaptureFixture[str]) -> None:
+    """Without rosbags installed: one line naming it and the extra to install."""
+    monkeypatch.setitem(sys.modules, 'rosbags', None)  # what Python does for a missing module
+    assert main(['replay', str(bag)]) == 1
+    err = capsys.readouterr().err
+    assert err.count('\n') == 1
+    assert "'rosbags' is not installed" in err and 'corridor_pid[offline]' in err
