@@ -160,3 +160,35 @@ PARAMS: tuple[ParamSpec, ...] = (
 SPECS: dict[str, ParamSpec] = {spec.name: spec for spec in PARAMS}
 LIVE_NAMES: frozenset[str] = frozenset(spec.name for spec in PARAMS if spec.live)
 DEFAULTS: dict[str, ParamValue] = {spec.name: spec.default for spec in PARAMS}
+
+
+def _range_text(spec: ParamSpec) -> str:
+    if spec.choices:
+        return ' \\| '.join(spec.choices)
+    if spec.low is None and spec.high is None:
+        return ''
+    low = '' if spec.low is None else f"{spec.low:g}{' <' if spec.low_open else ' ≤'} "
+    high = '' if spec.high is None else f' ≤ {spec.high:g}'
+    return f'{low}x{high}'
+
+
+def _default_text(spec: ParamSpec) -> str:
+    value = spec.default
+    if isinstance(value, bool):
+        return 'true' if value else 'false'
+    if isinstance(value, tuple):
+        return '(absent)' if not value else str(list(value))
+    if isinstance(value, str):
+        return f"'{value}'"
+    return str(value)
+
+
+def markdown_table() -> str:
+    """Return the README's parameter table (name, unit, default, range, live, meaning)."""
+    rows = ['| name | unit | default | range | live | meaning |',
+            '|---|---|---|---|---|---|']
+    for spec in PARAMS:
+        rows.append(f'| `{spec.name}` | {spec.unit} | {_default_text(spec)} | '
+                    f"{_range_text(spec)} | {'yes' if spec.live else 'no'} | "
+                    f'{spec.description} |')
+    return '\n'.join(rows) + '\n'
