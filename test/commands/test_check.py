@@ -12,7 +12,7 @@ from corridor_pid.cli import main
 from corridor_pid.core.paramsfile import write_params_file
 import numpy as np
 import pytest
-from reference_gains import REFERENCE_GAINS, reference_config
+from reference_gains import reference_config, REFERENCE_GAINS
 
 
 def _params(tmp_path: Path, text: str) -> str:
