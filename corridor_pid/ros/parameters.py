@@ -359,6 +359,9 @@ def _shown(value: object) -> str:
 
 
 DEFAULT_FILE_HEADER = """\
+SPDX-License-Identifier: Apache-2.0
+Copyright 2026 corridor_pid contributors
+
 corridor_pid: the controller node's default parameters (every value at its default).
 
 Load:   ros2 run corridor_pid corridor_pid_node --ros-args --params-file <this file>
