@@ -18,13 +18,14 @@ Interface (all names relative, so remappable; see DESIGN §4):
 * srv ``~/enable`` (std_srvs/SetBool); the node starts disabled unless ``start_enabled``.
 
 Timing: a command is computed on each pose arrival (``control.rate: 0.0``) or on a timer at
-``control.rate``; ``t`` is always the node clock, so ``use_sim_time`` works. A watchdog timer
-(period :func:`watchdog_period`) steps the controller without a pose so a stale pose stream
-stops the vehicle within ``watchdog.timeout`` plus one period. While not tracking, that timer
-publishes the ramp-down (speed to 0 at ``speed.max_decel``, steering back to trim within its
-rate limit): while ``stopped`` or ``finished`` it keeps publishing the resting command; while
-``disabled`` or ``waiting`` it publishes until the command is at rest and then stays silent,
-so another driver may command the vehicle.
+``control.rate``; ``t`` is always the node clock, so ``use_sim_time`` works. A watchdog
+timer (period ``corridor_pid.core.timing.watchdog_period``) steps the controller without a
+pose, so a stale pose stream stops the vehicle within ``watchdog.timeout`` plus one period.
+While not tracking, that timer publishes the ramp-down (speed to 0 at ``speed.max_decel``
+counted from the last command sent, steering back to trim within its rate limit). While
+``stopped`` or ``finished`` it keeps publishing the resting command; while ``disabled`` or
+``waiting`` it publishes until the command is at rest and then stays silent, so another
+driver may command the vehicle.
 
 Shutdown rule: every stop ramps at ``speed.max_decel`` while the node runs. On SIGINT or
 SIGTERM the process is about to end and cannot ramp, so the node publishes one final
@@ -49,6 +50,7 @@ from corridor_pid.core.config import Config
 from corridor_pid.core.controller import Controller, PoseSample, State, StepResult
 from corridor_pid.core.errors import ConfigError
 from corridor_pid.core.pid import scheduled_gains
+from corridor_pid.core.timing import watchdog_period
 from corridor_pid.ros.convert import (
     ackermann_class,
     ackermann_message,
@@ -78,7 +80,6 @@ from std_srvs.srv import SetBool
 
 __all__ = [
     'CMD_FRAME', 'CorridorPidNode', 'DIAGNOSTIC_KEYS', 'NODE_NAME', 'TERMS_FIELDS', 'main',
-    'watchdog_period',
 ]
 
 NODE_NAME = 'corridor_pid'
@@ -118,14 +119,6 @@ _STATE_TEXT = {
     State.STOPPED: 'stopped: pose stream stale (watchdog), resumes after recovery poses',
     State.FINISHED: 'finished: past the end of the course',
 }
-
-
-def watchdog_period(config: Config) -> float:
-    """Return the watchdog timer period [s]: min(watchdog.timeout / 4, 1 / diagnostics.rate).
-
-    A stale pose stream then stops the vehicle within ``watchdog.timeout`` plus this period.
-    """
-    return min(config.watchdog.timeout / 4.0, 1.0 / config.diagnostics.rate)
 
 
 def _reliable(depth: int) -> QoSProfile:

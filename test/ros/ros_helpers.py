@@ -71,8 +71,12 @@ TEST_VALUES: dict[str, object] = {
 """The controller settings every DDS test states explicitly (independent of the defaults)."""
 
 
-def write_params(path: Path, values: Mapping[str, object], node_name: str) -> Path:
-    """Write a params file for ``node_name`` (fully qualified): TEST_VALUES, then ``values``."""
+def write_params(path: Path, values: Mapping[str, object], node_name: str = '/**') -> Path:
+    """Write a params file: TEST_VALUES, then ``values``.
+
+    ROS applies a section only to the node of that fully qualified name (a namespaced node
+    does not take a ``corridor_pid:`` section), so the default is the wildcard ``/**``.
+    """
     merged = {**TEST_VALUES, **values}
     path.write_text(params_yaml(merged, node_name=node_name),  # type: ignore[arg-type]
                     encoding='utf-8')
@@ -99,9 +103,14 @@ class Peer:
     """The test's DDS side of one controller node in namespace ``ns``."""
 
     def __init__(self, proc: NodeProcess, ns: str, *, pose_type: str = 'pose_stamped',
-                 stamped: bool = True, frame: str = 'map') -> None:
-        """Create the test node, recorders, publishers and clients; wait for discovery."""
+                 stamped: bool = True, frame: str = 'map', sim_time: bool = False) -> None:
+        """Create the test node, recorders, publishers and clients; wait for discovery.
+
+        With ``sim_time`` the priming poses go with /clock at their stamps (the node's
+        clock stands still until /clock arrives).
+        """
         self.proc = proc
+        self.sim_time = sim_time
         self.ns = ns
         self.frame = frame
         self.pose_type = pose_type
@@ -143,6 +152,8 @@ class Peer:
 
         for k in itertools.count():
             stamp = PRIME_STAMP + k * 1e-3
+            if self.sim_time:
+                self.publish_clock(stamp)
             self.publish_pose(stamp, 0.0, 0.0)
             deadline = time.monotonic() + 1.0
             while time.monotonic() < deadline:
@@ -214,8 +225,11 @@ class Peer:
                                 {kv.key: kv.value for kv in status.values}))
         return out
 
-    def wait_status(self, predicate: Any, what: str) -> dict[str, str]:
-        """Wait for a diagnostics status whose values satisfy ``predicate``; return it."""
+    def wait_status(self, predicate: Any, what: str, *, clear: bool = True) -> dict[str, str]:
+        """Wait for a diagnostics status whose values satisfy ``predicate``; return it.
+
+        With ``clear`` only statuses received from now on count.
+        """
         found: list[dict[str, str]] = []
 
         def seen() -> bool:
@@ -225,7 +239,8 @@ class Peer:
                     return True
             return False
 
-        self.diag.clear()
+        if clear:
+            self.diag.clear()
         wait_until(seen, what, timeout=TIMEOUT, process=self.proc)
         return found[0]
 
