@@ -88,12 +88,11 @@ _TRACKING_STATES = ('tracking', 'waiting', '')
 
 def stamp_message(seconds: float) -> TimeMsg:
     """Return ``builtin_interfaces/Time`` for ``seconds`` [s] (rounded to the nanosecond)."""
-    ns = round(seconds * 1e9)
+    return _time_message(round(seconds * 1e9))
+
+
+def _time_message(ns: int) -> TimeMsg:
     return TimeMsg(sec=ns // 1_000_000_000, nanosec=ns % 1_000_000_000)
-
-
-def _stamp_seconds(msg: TimeMsg) -> float:
-    return float(msg.sec + msg.nanosec * 1e-9)
 
 
 def _quaternion_z_w(yaw: float) -> tuple[float, float]:
@@ -135,8 +134,8 @@ class SimVehicleNode(Node):
         self.create_service(SetBool, '~/blackout', self.blackout_callback)
         self.controller_state = ''
         self.resumed = False
-        self.origin = 0.0
-        """ROS time [s] of simulated time 0 (realtime pace)."""
+        self.origin_ns = 0
+        """ROS time [ns] of simulated time 0 (realtime pace; 0 in the fast pace)."""
         self._wall_origin = 0.0
         self._answers: dict[float, tuple[float, float, float]] = {}
         self._terms_index: dict[str, int] = {}
@@ -206,9 +205,9 @@ class SimVehicleNode(Node):
 
     # -- publishing ---------------------------------------------------------------------
 
-    def ros_stamp(self, sim_time: float) -> float:
-        """Return the ROS time [s] of a simulated time [s]."""
-        return sim_time if self.pace == 'fast' else self.origin + sim_time
+    def ros_stamp_ns(self, sim_time: float) -> int:
+        """Return the ROS time [ns] of a simulated time [s] (exact to the nanosecond)."""
+        return self.origin_ns + round(sim_time * 1e9)
 
     def publish_clock(self, sim_time: float) -> None:
         """Publish /clock at ``sim_time`` [s] (fast pace only)."""
@@ -217,9 +216,9 @@ class SimVehicleNode(Node):
             msg.clock = stamp_message(sim_time)
             self._clock_pub.publish(msg)
 
-    def publish_pose(self, stamp: float, x: float, y: float, yaw: float,
+    def publish_pose(self, stamp_ns: int, x: float, y: float, yaw: float,
                      frame_id: str) -> None:
-        """Publish one pose sample: stamp [s] (ROS time), x, y [m], yaw [rad]."""
+        """Publish one pose sample: stamp [ns] (ROS time), x, y [m], yaw [rad]."""
         qz, qw = _quaternion_z_w(yaw)
         plant = self.world.plant
         msg: Any
@@ -233,7 +232,7 @@ class SimVehicleNode(Node):
         else:
             msg = PoseStamped()
             pose = msg.pose
-        msg.header.stamp = stamp_message(stamp)
+        msg.header.stamp = _time_message(stamp_ns)
         msg.header.frame_id = frame_id
         pose.position.x = x
         pose.position.y = y
@@ -315,7 +314,8 @@ def run(node: SimVehicleNode, executor: SingleThreadedExecutor,
     if not node.connected():
         node.log.info('waiting for the controller to be matched on every topic')
         _spin_until(executor, node.connected, math.inf, stop)
-    node.origin = node.get_clock().now().nanoseconds * 1e-9
+    if not fast:
+        node.origin_ns = node.get_clock().now().nanoseconds
     node._wall_origin = time.monotonic()
     while True:
         if not fast:
@@ -344,8 +344,9 @@ def run(node: SimVehicleNode, executor: SingleThreadedExecutor,
                 _spin_until(executor, lambda: False, node.idle_wait, stop)
             node.publish_state()
             continue
-        stamp = node.ros_stamp(sample.stamp)
-        node.publish_pose(stamp, sample.x, sample.y, sample.yaw, sample.frame_id)
+        stamp_ns = node.ros_stamp_ns(sample.stamp)
+        stamp = stamp_ns * 1e-9
+        node.publish_pose(stamp_ns, sample.x, sample.y, sample.yaw, sample.frame_id)
         node_time = math.nan
         if fast:
             expecting = node.controller_state in _TRACKING_STATES
