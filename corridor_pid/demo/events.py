@@ -14,7 +14,7 @@ from collections.abc import Sequence
 from typing import Any, NamedTuple
 
 from corridor_pid.demo.script import DemoScript
-from corridor_pid.demo.trace import RunTable, StateChange
+from corridor_pid.demo.table import RunTable, StateChange
 from corridor_pid.sim.metrics import Metrics
 import numpy as np
 

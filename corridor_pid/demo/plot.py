@@ -21,7 +21,7 @@ from corridor_pid.core.config import Config
 from corridor_pid.core.course import Course
 from corridor_pid.demo.events import Event
 from corridor_pid.demo.script import DemoScript
-from corridor_pid.demo.trace import RunTable
+from corridor_pid.demo.table import RunTable
 from corridor_pid.sim.metrics import Metrics, settling_band
 from corridor_pid.sim.plot import pyplot
 from corridor_pid.sim.scenario import Scenario

@@ -39,9 +39,10 @@ class BagRecorder:
 
         self.path = Path(path)
         self.counts: dict[str, int] = dict.fromkeys(topics, 0)
-        self._writer: Any = Writer(self.path, version=9, storage_plugin=StoragePlugin.MCAP)
         store = jazzy_typestore()
         try:
+            self._writer: Any = Writer(self.path, version=9,
+                                       storage_plugin=StoragePlugin.MCAP)
             self._writer.open()
             self._connections = {
                 topic: self._writer.add_connection(topic, msgtype, typestore=store)

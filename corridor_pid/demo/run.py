@@ -40,7 +40,7 @@ from corridor_pid.demo.processes import ProcessGroup
 from corridor_pid.demo.progress import Progress
 from corridor_pid.demo.script import demo_script, DemoScript, ParamChange
 from corridor_pid.demo.summary import summary_object, summary_text, write_summary
-from corridor_pid.demo.trace import run_metrics, run_table, RunTable, write_run_csv
+from corridor_pid.demo.table import run_metrics, run_table, RunTable, write_run_csv
 from corridor_pid.demo.world import STATE_NAMES
 from corridor_pid.sim.loop import controller_config, simulate
 from corridor_pid.sim.scenario import load_scenario, Scenario

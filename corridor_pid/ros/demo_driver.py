@@ -255,7 +255,8 @@ class DemoDriver(Node):
 
     def set_parameter(self, name: str, value: float) -> tuple[bool, str]:
         """Set one parameter of the controller; return (successful, reason)."""
-        param = Parameter(name, Parameter.Type.DOUBLE, float(value))  # type: ignore[no-untyped-call]
+        param = Parameter(  # type: ignore[no-untyped-call]
+            name, Parameter.Type.DOUBLE, float(value))
         future = self.params.set_parameters([param])
         response = self.result(future, f'{CONTROLLER}/set_parameters ({name})')
         outcome = response.results[0]
@@ -277,4 +278,3 @@ class DemoDriver(Node):
 def message_types(topics: Mapping[str, type]) -> dict[str, str]:
     """Return topic -> ROS type name ('std_msgs/msg/Float64') for message classes."""
     return {topic: _ros_type_name(cls) for topic, cls in topics.items()}
-
