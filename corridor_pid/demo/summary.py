@@ -28,7 +28,7 @@ from pathlib import Path
 from typing import Any
 
 from corridor_pid.demo.events import Event, EVENT_KINDS, Goal
-from corridor_pid.sim.metrics import METRIC_UNITS, Metrics
+from corridor_pid.sim.metrics import metric_text, METRIC_UNITS, Metrics
 
 __all__ = ['summary_object', 'summary_text', 'write_summary']
 
@@ -73,34 +73,22 @@ def write_summary(path: str | Path, summary: Mapping[str, Any]) -> None:
     Path(path).write_text(json.dumps(summary, indent=2) + '\n', encoding='utf-8')
 
 
-def _metric(value: Any, unit: str) -> str:
-    if value is None:
-        return 'n/a'
-    if isinstance(value, bool):
-        return 'yes' if value else 'no'
-    if isinstance(value, int):
-        return str(value)
-    if unit == '':
-        return f'{100.0 * value:.1f} %'
-    return f'{value:.3f} {unit}'
-
-
 def summary_text(summary: Mapping[str, Any], out: Path) -> str:
     """Return the summary printed at the end: metrics, events, goals, files."""
     lines = ['', 'metrics (true path of the simulated vehicle)']
     units = summary['metric_units']
     for name, value in summary['metrics'].items():
-        lines.append(f'  {name:<34} {_metric(value, units.get(name, ""))}')
+        lines.append(f'  {name:<34} {metric_text(value, units.get(name, ""))}')
     effect = summary['retune_effect']
     if effect.get('live_rms') is not None and effect.get('without_retune_rms') is not None:
         lines += [
             '',
             f"retune {effect['gain']} {effect['from']:g} -> {effect['to']:g}, from "
             f"{effect['window'][0]:g} s to the end: live / without it (offline simulation)",
-            f"  RMS lateral error   {effect['live_rms']:.3f} m / "
-            f"{effect['without_retune_rms']:.3f} m",
-            f"  overshoot           {effect['live_overshoot']:.3f} m / "
-            f"{effect['without_retune_overshoot']:.3f} m"]
+            f"  RMS lateral error   {metric_text(effect['live_rms'], 'm')} / "
+            f"{metric_text(effect['without_retune_rms'], 'm')}",
+            f"  overshoot           {metric_text(effect.get('live_overshoot'), 'm')} / "
+            f"{metric_text(effect.get('without_retune_overshoot'), 'm')}"]
     lines += ['', 'events (simulated time)']
     for event in summary['events']:
         lines.append(f"  {event['t']:7.2f} s  {event['text']}")

@@ -32,22 +32,19 @@ from typing import NamedTuple
 
 from corridor_pid.core.controller import PoseSample
 from corridor_pid.core.course import Course
+from corridor_pid.sim.loop import TRACE_COLUMNS
 from corridor_pid.sim.plant import Plant
 from corridor_pid.sim.scenario import Scenario
 from corridor_pid.sim.sensor import PoseSensor
 
 __all__ = ['SIM_STATE_FIELDS', 'EventKind', 'Phase', 'SimWorld', 'WorldEvent']
 
+_TRUTH = {name: (name, unit, meaning) for name, unit, meaning in TRACE_COLUMNS}
+
 SIM_STATE_FIELDS: tuple[tuple[str, str, str], ...] = (
     ('time', 's', 'simulated time since the start of the run'),
-    ('x', 'm', 'true rear-axle x in the course frame'),
-    ('y', 'm', 'true rear-axle y in the course frame'),
-    ('yaw', 'rad', 'true heading in the course frame'),
-    ('lateral', 'm', 'true lateral offset from the centreline, positive left'),
-    ('heading_error', 'rad', 'true heading error to the centreline tangent'),
-    ('progress', 'm', 'true progress along the centreline'),
-    ('steer', 'rad', 'actual wheel angle'),
-    ('speed', 'm/s', 'actual speed'),
+    *(_TRUTH[name] for name in ('x', 'y', 'yaw', 'lateral', 'heading_error', 'progress',
+                                'steer', 'speed')),
     ('steer_command', 'rad', 'last steering command received'),
     ('speed_command', 'm/s', 'last speed command received'),
     ('pose_stamp', 's', 'header stamp of the pose sent in this slot (NaN: lost)'),

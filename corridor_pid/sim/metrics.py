@@ -25,6 +25,7 @@ __all__ = [
     'final_lateral_error',
     'max_lateral_error',
     'mean_speed',
+    'metric_text',
     'metrics_from',
     'overshoot',
     'rms_lateral_error',
@@ -156,6 +157,19 @@ def mean_speed(speed: ArrayLike) -> float:
     """Return the mean vehicle speed over the samples of the run (m/s)."""
     values = np.asarray(speed, dtype=float)
     return float(np.mean(values)) if values.size else 0.0
+
+
+def metric_text(value: float | int | bool | None, unit: str, missing: str = 'n/a') -> str:
+    """Return a metric as a table shows it: '0.123 m', '12.5 %' (unit ''), 'yes', '3'."""
+    if value is None:
+        return missing
+    if isinstance(value, bool):
+        return 'yes' if value else 'no'
+    if isinstance(value, int):
+        return str(value)
+    if unit == '':
+        return f'{100.0 * value:.1f} %'
+    return f'{value:.3f} {unit}'
 
 
 @dataclass(frozen=True)

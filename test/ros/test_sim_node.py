@@ -201,6 +201,17 @@ class Rig:
         self.rows.wait_for(seen, f'a {phase.name} row at {t}', timeout=120.0,
                            process=self.sim)
 
+    def run_through(self) -> None:
+        """Resume from the start hold and wait for the end of the run."""
+        self.wait_row(Phase.HELD, 0.0)
+        self.resume()
+        self.wait_row(Phase.FINISHED)
+
+    def stamps_ns(self) -> np.ndarray:
+        """Return the header stamps [ns] of the poses received."""
+        return np.array([s.header.stamp.sec * 1_000_000_000 + s.header.stamp.nanosec
+                         for s in self.poses.snapshot()], dtype=np.int64)
+
     def running_rows(self) -> np.ndarray:
         """Return the pose-slot rows received, as an array."""
         data = [list(r.data) for r in self.rows.snapshot()]
@@ -246,12 +257,9 @@ def test_fast_pace_runs_in_lock_step_with_the_controller(
     """
     duration = 4.0
     with rig(tmp_path, dds_env, 'fast', duration) as r:
-        r.wait_row(Phase.HELD, 0.0)
-        r.resume()
-        r.wait_row(Phase.FINISHED)
+        r.run_through()
         rows = r.running_rows()
-        stamps = [s.header.stamp.sec + s.header.stamp.nanosec * 1e-9
-                  for s in r.poses.snapshot()]
+        stamps = r.stamps_ns() * 1e-9
         states = r.states()
     assert states[-1] == 'tracking' and 'stopped' not in states
     slots = int(round((duration - DELAY) * RATE)) + 1
@@ -283,8 +291,7 @@ def test_blackout_service_silences_the_sensor_and_the_watchdog_stops(
         assert r.call(r.blackout_client, SetBool.Request(data=False)).success
         r.resume()
         r.wait_row(Phase.FINISHED)
-        stamps = np.array([s.header.stamp.sec + s.header.stamp.nanosec * 1e-9
-                           for s in r.poses.snapshot()])
+        stamps = r.stamps_ns() * 1e-9
         rows = r.running_rows()
         states = r.states()
     assert not np.any((stamps >= 2.0 - 1e-9) & (stamps < 3.0 - 1e-9))
@@ -304,12 +311,9 @@ def test_realtime_pace_sends_every_pose_at_the_pose_rate(
     """On the wall clock: one pose per slot, stamps 1/rate apart, the vehicle moves."""
     duration = 2.0
     with rig(tmp_path, dds_env, 'realtime', duration) as r:
-        r.wait_row(Phase.HELD, 0.0)
-        r.resume()
-        r.wait_row(Phase.FINISHED)
+        r.run_through()
         rows = r.running_rows()
-        stamps = np.array([s.header.stamp.sec * 1_000_000_000 + s.header.stamp.nanosec
-                           for s in r.poses.snapshot()], dtype=np.int64)
+        stamps = r.stamps_ns()
     slots = int(round((duration - DELAY) * RATE)) + 1
     assert len(rows) == len(stamps) == slots
     # Stamps are the instants the samples were taken: 20 ms apart to the nanosecond.
