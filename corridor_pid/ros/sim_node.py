@@ -45,6 +45,7 @@ from collections.abc import Callable, Sequence
 import math
 import signal
 import sys
+import textwrap
 import time
 from types import FrameType
 from typing import Any
@@ -379,13 +380,17 @@ def _matching(node: SimVehicleNode, steering: float, speed: float) -> Callable[[
 
 def build_parser() -> argparse.ArgumentParser:
     """Return the argument parser of the simulated vehicle node."""
+    from corridor_pid.cli import SAFETY
+
     parser = argparse.ArgumentParser(
-        prog='corridor_pid_sim',
-        description='Simulated vehicle for corridor_pid: subscribes to steering_angle and '
-                    "target_speed, publishes the pose of a scenario's vehicle (and /clock "
-                    'with --pace fast). Starts held at t = 0: call ~/resume to run. ROS '
-                    'arguments go after --ros-args.',
-        epilog='A simulation only: it says nothing about the safety of a real vehicle.')
+        prog='corridor_pid_sim', formatter_class=argparse.RawDescriptionHelpFormatter,
+        description=textwrap.fill(
+            'Simulated vehicle for corridor_pid: subscribes to steering_angle and '
+            "target_speed, publishes the pose of a scenario's vehicle (and /clock with "
+            '--pace fast). Starts held at t = 0: call ~/resume to run. ROS arguments go '
+            'after --ros-args.', width=79),
+        epilog='A simulation only: it says nothing about the safety of a real vehicle.\n\n'
+               + SAFETY)
     parser.add_argument('scenario', metavar='SCENARIO', help='scenario YAML file')
     parser.add_argument('--pace', choices=PACES, default='realtime',
                         help='realtime (wall clock) or fast (lock-step on /clock); '
@@ -421,6 +426,9 @@ def _options(argv: Sequence[str]) -> tuple[argparse.Namespace, list[str]] | int:
     if options.duration is not None and not (options.duration > 0.0
                                              and math.isfinite(options.duration)):
         _error(f'--duration: expected a finite number > 0, got {options.duration!r}')
+        return 2
+    if options.pose_readers < 0:
+        _error(f'--pose-readers: expected a whole number >= 0, got {options.pose_readers!r}')
         return 2
     if options.idle_wait < 0.0 or not math.isfinite(options.idle_wait):
         _error(f'--idle-wait: expected a finite number >= 0, got {options.idle_wait!r}')

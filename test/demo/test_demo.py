@@ -30,7 +30,7 @@ from corridor_pid.sim.scenario import load_scenario
 import numpy as np
 import pytest
 
-pytestmark = pytest.mark.dds
+pytestmark = [pytest.mark.dds, pytest.mark.slow]
 
 DURATION = 20.0
 RATE = 50.0            # pose_rate of the default scenario [Hz]

@@ -139,6 +139,15 @@ def test_bad_scenario_is_one_error_line(tmp_path: Path, capsys: pytest.CaptureFi
     assert sim_node.main([str(scenario_file), '--pace', 'realtime', '--hold', '2.0']) == 2
     assert '--hold' in capsys.readouterr().err
     assert sim_node.main([str(scenario_file), '--duration', 'nan']) == 2
+    assert sim_node.main([str(scenario_file), '--pose-readers', '-1']) == 2
+
+
+def test_help_carries_the_safety_cautions(capsys: pytest.CaptureFixture[str]) -> None:
+    """--help names the paces and ends with the cautions about real vehicles."""
+    assert sim_node.main(['--help']) == 0
+    text = capsys.readouterr().out
+    assert '--pace {realtime,fast}' in text and '~/resume' in text
+    assert 'emergency stop' in text and 'not a safety-rated function' in text
 
 
 # -- the node with the real controller ----------------------------------------------------
