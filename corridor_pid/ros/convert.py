@@ -28,8 +28,8 @@ from nav_msgs.msg import Odometry
 
 __all__ = [
     'POSE_TYPES', 'ackermann_class', 'ackermann_message', 'pose_converter', 'sample_from_odometry',
-    'sample_from_pose_stamped', 'sample_from_pose_with_covariance', 'stamp_seconds',
-    'twist_message', 'twist_stamped_message', 'yaw_from_quaternion',
+    'sample_from_pose_stamped', 'sample_from_pose_with_covariance', 'set_stamp', 'set_twist',
+    'stamp_seconds', 'twist_message', 'twist_stamped_message', 'yaw_from_quaternion',
 ]
 
 
@@ -85,11 +85,21 @@ def pose_converter(pose_type: str) -> tuple[type, Callable[[Any], PoseSample]]:
     return POSE_TYPES[pose_type]
 
 
+def set_twist(twist: Twist, steering: float, speed: float, wheelbase: float) -> None:
+    """Write a command into ``twist``: linear.x = speed [m/s], angular.z = yaw rate [rad/s]."""
+    twist.linear.x = speed
+    twist.angular.z = yaw_rate_from(steering, speed, wheelbase)
+
+
+def set_stamp(stamp: Time, nanoseconds: int) -> None:
+    """Write a time in nanoseconds into a ``builtin_interfaces/Time``."""
+    stamp.sec, stamp.nanosec = divmod(nanoseconds, 1_000_000_000)
+
+
 def twist_message(steering: float, speed: float, wheelbase: float) -> Twist:
     """Return the plain ``Twist`` of a command: linear.x [m/s], angular.z [rad/s]."""
     msg = Twist()
-    msg.linear.x = speed
-    msg.angular.z = yaw_rate_from(steering, speed, wheelbase)
+    set_twist(msg, steering, speed, wheelbase)
     return msg
 
 
@@ -99,7 +109,7 @@ def twist_stamped_message(steering: float, speed: float, wheelbase: float, stamp
     msg = TwistStamped()
     msg.header.stamp = stamp
     msg.header.frame_id = frame_id
-    msg.twist = twist_message(steering, speed, wheelbase)
+    set_twist(msg.twist, steering, speed, wheelbase)
     return msg
 
 

@@ -27,6 +27,9 @@ counted from the last command sent, steering back to trim within its rate limit)
 ``waiting`` it publishes until the command is at rest and then stays silent, so another
 driver may command the vehicle.
 
+Executor: rclpy's events executor where the installed rclpy has it (lowest latency), else
+the single-threaded executor; ``CORRIDOR_PID_EXECUTOR=single`` forces the latter.
+
 Shutdown rule: every stop ramps at ``speed.max_decel`` while the node runs. On SIGINT or
 SIGTERM the process is about to end and cannot ramp, so the node publishes one final
 command with speed 0 and steering at trim on every command output, waits (briefly) for
@@ -41,11 +44,13 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 import math
+import os
 import signal
 import sys
 from types import FrameType
 from typing import Any
 
+from builtin_interfaces.msg import Time as BuiltinTime
 from corridor_pid.core.config import Config
 from corridor_pid.core.controller import Controller, PoseSample, State, StepResult
 from corridor_pid.core.errors import ConfigError
@@ -55,8 +60,8 @@ from corridor_pid.ros.convert import (
     ackermann_class,
     ackermann_message,
     pose_converter,
-    twist_message,
-    twist_stamped_message,
+    set_stamp,
+    set_twist,
 )
 from corridor_pid.ros.parameters import (
     declare_parameters,
@@ -83,6 +88,9 @@ __all__ = [
 ]
 
 NODE_NAME = 'corridor_pid'
+
+EXECUTOR_VARIABLE = 'CORRIDOR_PID_EXECUTOR'
+"""Environment variable: ``single`` runs the node on rclpy's single-threaded executor."""
 
 CMD_FRAME = 'base_link'
 """Frame id of the stamped commands: the vehicle body (rear-axle centre)."""
@@ -160,6 +168,11 @@ class CorridorPidNode(Node):
         self._speed_pub = self.create_publisher(Float64, 'target_speed', reliable)
         self._cmd_pub = self.create_publisher(
             TwistStamped if config.cmd_vel_stamped else Twist, 'cmd_vel', reliable)
+        self._steer_msg = Float64()
+        self._speed_msg = Float64()
+        self._cmd_msg: Any = TwistStamped() if config.cmd_vel_stamped else Twist()
+        if config.cmd_vel_stamped:
+            self._cmd_msg.header.frame_id = CMD_FRAME
         self._ackermann_pub = (
             None if self._ackermann_class is None
             else self.create_publisher(self._ackermann_class, 'ackermann_drive', reliable))
@@ -292,35 +305,44 @@ class CorridorPidNode(Node):
 
     # -- publishing ---------------------------------------------------------------------
 
-    def _publish(self, result: StepResult, now: Time) -> None:
-        """Publish a control cycle: steering_angle first, then speed, cmd_vel, extras."""
-        steer, speed = result.steering, result.speed
-        msg = Float64()
+    def _send(self, steer: float, speed: float, nanoseconds: int) -> None:
+        """Publish one command: steering_angle first, then target_speed, cmd_vel, ackermann.
+
+        The messages are kept and refilled (publishing serialises them at once).
+        """
+        msg = self._steer_msg
         msg.data = steer
         self._steer_pub.publish(msg)
-        msg = Float64()
+        msg = self._speed_msg
         msg.data = speed
         self._speed_pub.publish(msg)
-        self._publish_motion(steer, speed, now)
-        self._rested = False
-        terms = Float64MultiArray()
-        terms.layout.dim = self._terms_layout
-        terms.data = [
-            self._last_stamp, now.nanoseconds * 1e-9, result.error, result.p, result.i, result.d,
-            result.feedforward, result.blend, result.unclamped, steer, speed,
-            result.kp, result.ki, result.kd, result.lateral, result.heading]
-        self._terms_pub.publish(terms)
-
-    def _publish_motion(self, steer: float, speed: float, now: Time) -> None:
+        cmd = self._cmd_msg
         if self._stamped:
-            self._cmd_pub.publish(
-                twist_stamped_message(steer, speed, self._wheelbase, now.to_msg(), CMD_FRAME))
+            set_stamp(cmd.header.stamp, nanoseconds)
+            set_twist(cmd.twist, steer, speed, self._wheelbase)
         else:
-            self._cmd_pub.publish(twist_message(steer, speed, self._wheelbase))
+            set_twist(cmd, steer, speed, self._wheelbase)
+        self._cmd_pub.publish(cmd)
         if self._ackermann_pub is not None:
+            stamp = BuiltinTime()
+            set_stamp(stamp, nanoseconds)
             self._ackermann_pub.publish(ackermann_message(
-                self._ackermann_class, steer, speed, self._wheelbase, now.to_msg(),  # type: ignore[arg-type]
-                CMD_FRAME))
+                self._ackermann_class, steer, speed,  # type: ignore[arg-type]
+                self._wheelbase, stamp, CMD_FRAME))
+
+    def _publish(self, result: StepResult, now: Time) -> None:
+        """Publish a control cycle: the command, then ``~/terms`` if anyone listens."""
+        nanoseconds = now.nanoseconds
+        self._send(result.steering, result.speed, nanoseconds)
+        self._rested = False
+        if self._terms_pub.get_subscription_count():
+            terms = Float64MultiArray()
+            terms.layout.dim = self._terms_layout
+            terms.data = [
+                self._last_stamp, nanoseconds * 1e-9, result.error, result.p, result.i,
+                result.d, result.feedforward, result.blend, result.unclamped, result.steering,
+                result.speed, result.kp, result.ki, result.kd, result.lateral, result.heading]
+            self._terms_pub.publish(terms)
 
     def _publish_idle(self, result: StepResult, now: Time) -> None:
         """Publish a ramp-down command while not tracking (see the module docstring)."""
@@ -328,25 +350,12 @@ class CorridorPidNode(Node):
         if self._rested and not holding:
             return
         steer, speed = result.steering, result.speed
-        msg = Float64()
-        msg.data = steer
-        self._steer_pub.publish(msg)
-        msg = Float64()
-        msg.data = speed
-        self._speed_pub.publish(msg)
-        self._publish_motion(steer, speed, now)
+        self._send(steer, speed, now.nanoseconds)
         self._rested = speed == 0.0 and steer == self._trim
 
     def publish_stop(self) -> None:
         """Publish the final command (speed 0, steering at trim) and wait for its delivery."""
-        now = self.get_clock().now()
-        msg = Float64()
-        msg.data = self._trim
-        self._steer_pub.publish(msg)
-        msg = Float64()
-        msg.data = 0.0
-        self._speed_pub.publish(msg)
-        self._publish_motion(self._trim, 0.0, now)
+        self._send(self._trim, 0.0, self.get_clock().now().nanoseconds)
         publishers = [self._steer_pub, self._speed_pub, self._cmd_pub]
         if self._ackermann_pub is not None:
             publishers.append(self._ackermann_pub)
@@ -417,6 +426,23 @@ def _text(value: object) -> str:
     if isinstance(value, float):
         return repr(value)
     return str(value)
+
+
+def _executor(context: Context) -> Any:
+    """Return rclpy's events executor where rclpy has it, else the single-threaded one.
+
+    The events executor dispatches each ready entity without rebuilding a wait set per
+    message, which keeps the pose-to-command latency low at kHz pose rates.
+    ``CORRIDOR_PID_EXECUTOR=single`` forces the single-threaded executor.
+    """
+    if os.environ.get(EXECUTOR_VARIABLE, '') != 'single':
+        try:
+            from rclpy.experimental.events_executor import EventsExecutor
+        except ImportError:
+            pass
+        else:
+            return EventsExecutor(context=context)
+    return SingleThreadedExecutor(context=context)
 
 
 def _error(message: str) -> None:
@@ -493,7 +519,7 @@ def main(args: Sequence[str] | None = None) -> int:
             _error(str(err))
             return 1
         node.warn_unapplied(expected)
-        executor = SingleThreadedExecutor(context=context)
+        executor = _executor(context)
         executor.add_node(node)
         try:
             while not signals and context.ok():
