@@ -62,6 +62,7 @@ setup(
         'console_scripts': [
             'corridor-pid = corridor_pid.cli:main',
             'corridor_pid_node = corridor_pid.ros.node:main',
+            'corridor_pid_sim = corridor_pid.ros.sim_node:main',
         ],
     },
 )

@@ -77,9 +77,9 @@ def site_packages(install: Path) -> Path:
 
 
 def test_colcon_install_tree_has_executables_and_index(colcon_install: Path) -> None:
-    """The colcon build puts both executables in lib/corridor_pid and registers the package."""
+    """The colcon build puts the executables in lib/corridor_pid and registers the package."""
     prefix = colcon_install / 'corridor_pid'
-    for name in ('corridor-pid', 'corridor_pid_node'):
+    for name in ('corridor-pid', 'corridor_pid_node', 'corridor_pid_sim'):
         script = prefix / 'lib' / 'corridor_pid' / name
         assert script.is_file(), f'missing {script}'
         assert os.access(script, os.X_OK), f'{script} is not executable'
@@ -139,6 +139,7 @@ def test_installed_metadata_matches_package_xml() -> None:
     assert scripts == {
         'corridor-pid': 'corridor_pid.cli:main',
         'corridor_pid_node': 'corridor_pid.ros.node:main',
+        'corridor_pid_sim': 'corridor_pid.ros.sim_node:main',
     }
 
 
