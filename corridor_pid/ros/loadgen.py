@@ -9,20 +9,31 @@
   message is sent at once, the schedule is not shifted), from the calling thread.
 * :class:`Tally` counts the messages of a topic and keeps only the last value (no list that
   grows with a flood), noting any non-finite ``Float64``.
+* :func:`probe_node` gives a measuring node spun in the background; :class:`OutputTimer`
+  times pose -> ``steering_angle`` of a running node in a long run (soak), window by window.
+* :func:`measure_resources` feeds a process (the node, or the bare relay of
+  :mod:`corridor_pid.ros.latency`) a paced pose stream and reads its CPU time and resident
+  memory from ``/proc``.
 * ``python -m corridor_pid.ros.loadgen --topic /cart/pose --rate 2000 --count 60000`` is a
   pose publisher in a process of its own (for floods and publisher restarts): it waits for
-  a subscriber, publishes, waits for the reliable acknowledgements, and prints one JSON line
-  with what it sent. It keeps DDS on loopback; its domain id comes from the parent's
-  environment (``ROS_DOMAIN_ID``; one is claimed when it is missing).
+  a subscriber, prints ``{"started": true}``, publishes, waits for the reliable
+  acknowledgements, and prints a last JSON line with what it sent. It keeps DDS on
+  loopback; its domain id comes from the parent's environment (``ROS_DOMAIN_ID``; one is
+  claimed when it is missing).
 """
 
 from __future__ import annotations
 
 import argparse
-from collections.abc import Callable, Sequence
+import collections
+from collections.abc import Callable, Iterator, Mapping, Sequence
+import contextlib
 import json
 import math
 import os
+from pathlib import Path
+import signal
+import subprocess
 import sys
 import threading
 import time
@@ -34,8 +45,9 @@ from rclpy.node import Node
 from rclpy.qos import qos_profile_sensor_data, QoSProfile, ReliabilityPolicy
 
 __all__ = [
-    'CART_SPEED', 'PaceReport', 'Tally', 'cart_pose', 'main', 'pose_stamped', 'publish_paced',
-    'qos_named',
+    'CART_SPEED', 'OutputTimer', 'PaceReport', 'ResourceUse', 'Tally', 'cart_pose', 'main',
+    'measure_resources', 'pose_stamped', 'probe_node', 'publish_paced', 'qos_named',
+    'status_values',
 ]
 
 CART_SPEED = 1.0
@@ -132,6 +144,177 @@ class Tally:
             return self.count, self.last
 
 
+@contextlib.contextmanager
+def probe_node(name: str) -> Iterator[Node]:
+    """Yield a node in an rclpy context of its own, spun in a background thread.
+
+    The caller's process must already be on a local DDS domain (see
+    :func:`corridor_pid.ros.isolation.isolate_this_process`).
+    """
+    from corridor_pid.ros.testing import Spinner
+    import rclpy
+    from rclpy.context import Context
+    from rclpy.utilities import try_shutdown
+
+    context = Context()
+    rclpy.init(context=context)
+    node = Node(name, context=context)
+    spinner = Spinner(node)
+    try:
+        yield node
+    finally:
+        spinner.close()
+        node.destroy_node()  # type: ignore[no-untyped-call]
+        try_shutdown(context=context)
+
+
+class OutputTimer:
+    """Time the node's ``steering_angle`` outputs from the sending of their poses.
+
+    The node publishes ``steering_angle`` and then ``~/terms`` (which carries the pose
+    stamp) once per computed cycle, so the n-th ``steering_angle`` and the n-th ``~/terms``
+    belong to one pose; its latency is the ``steering_angle`` arrival minus the moment just
+    before that pose was published, on this process's monotonic clock. Poses are keyed by
+    their stamp in microseconds (stamps must be at least that far apart). Nothing grows
+    without bound: :meth:`harvest` takes what has been matched.
+    """
+
+    def __init__(self, node: Node, namespace: str, depth: int = 1000) -> None:
+        """Create the pose publisher and the two subscriptions (reliable QoS)."""
+        from std_msgs.msg import Float64, Float64MultiArray
+
+        qos = qos_named('reliable', depth)
+        self.publisher = node.create_publisher(PoseStamped, f'{namespace}/pose', qos)
+        self.steering = node.create_subscription(
+            Float64, f'{namespace}/steering_angle', self._steering, qos)
+        self.terms = node.create_subscription(
+            Float64MultiArray, f'{namespace}/corridor_pid/terms', self._terms, qos)
+        self._lock = threading.Lock()
+        self._sent: dict[int, int] = {}
+        self._arrivals: collections.deque[int] = collections.deque()
+        self._stamps: collections.deque[int] = collections.deque()
+
+    def _steering(self, msg: Any) -> None:
+        now = time.perf_counter_ns()
+        with self._lock:
+            self._arrivals.append(now)
+
+    def _terms(self, msg: Any) -> None:
+        key = round(msg.data[0] * 1e6)
+        with self._lock:
+            self._stamps.append(key)
+
+    def publish(self, stamp_ns: int, x: float, y: float, yaw: float) -> None:
+        """Publish one pose stamped ``stamp_ns`` and note when it went."""
+        msg = pose_stamped(stamp_ns, x, y, yaw)
+        key = round(stamp_ns / 1000)
+        with self._lock:
+            self._sent[key] = time.perf_counter_ns()
+        self.publisher.publish(msg)
+
+    def pending(self) -> int:
+        """Return the number of poses sent and not matched to an output yet."""
+        with self._lock:
+            return len(self._sent)
+
+    def harvest(self) -> tuple[list[float], int]:
+        """Return the latencies [s] matched since the last call, and the poses lost.
+
+        A pose is lost when an output for a later pose has arrived and none for it.
+        """
+        latencies: list[float] = []
+        with self._lock:
+            newest = None
+            while self._arrivals and self._stamps:
+                arrival, key = self._arrivals.popleft(), self._stamps.popleft()
+                sent = self._sent.pop(key, None)
+                if sent is not None:
+                    latencies.append((arrival - sent) * 1e-9)
+                    newest = key
+            lost = 0
+            if newest is not None:
+                for key in [k for k in self._sent if k < newest]:
+                    del self._sent[key]
+                    lost += 1
+        return latencies, lost
+
+
+def status_values(array: Any, name: str) -> dict[str, str] | None:
+    """Return the values of the status called ``name`` in a DiagnosticArray, or None."""
+    for status in array.status:
+        if status.name == name:
+            return {kv.key: kv.value for kv in status.values}
+    return None
+
+
+class ResourceUse(NamedTuple):
+    """CPU and memory of one process under a paced pose stream."""
+
+    name: str
+    rate: float
+    """Pose rate [Hz]."""
+    cpu: float
+    """CPU used over the window, as a share of one core (0.25 = a quarter of a core)."""
+    rss: int
+    """Resident memory at the end of the window [bytes]."""
+    rss_growth: int
+    """Resident memory at the end minus at the start of the window [bytes]."""
+    window: float
+    """Length of the window [s]."""
+
+
+def measure_resources(name: str, command: Sequence[str] | None, params_file: Path | None,
+                      namespace: str, rate: float, *, window: float = 5.0,
+                      warmup: float = 1.0, env: Mapping[str, str] | None = None,
+                      log_dir: str | os.PathLike[str] | None = None) -> ResourceUse:
+    """Return the CPU share and resident memory of a process fed poses at ``rate`` Hz.
+
+    The process (the controller node by default, or ``command``) runs in ``namespace``; a
+    pose publisher of its own process (this module's ``main``) feeds ``namespace/pose``.
+    ``/proc/<pid>/stat`` and ``status`` are read ``warmup`` s after the first pose and again
+    ``window`` s later.
+
+    Raises:
+        RuntimeError: a process exited early (its output attached).
+
+    """
+    from corridor_pid.benchmarks.procstat import cpu_share, process_sample
+    from corridor_pid.ros.testing import start_node
+
+    run_env = isolation.local_dds_env() if env is None else dict(env)
+    proc = start_node(params_file, namespace=namespace, env=run_env, command=command,
+                      log_dir=log_dir)
+    count = int(rate * (warmup + window + 2.0))
+    feeder = subprocess.Popen(
+        [sys.executable, '-m', 'corridor_pid.ros.loadgen', '--topic', f'{namespace}/pose',
+         '--rate', repr(rate), '--count', str(count)],
+        env=run_env, stdin=subprocess.DEVNULL, stdout=subprocess.PIPE,
+        stderr=subprocess.STDOUT, text=True, start_new_session=True)
+    try:
+        assert feeder.stdout is not None
+        line = feeder.stdout.readline()
+        if 'started' not in line:
+            proc.check_running()
+            raise RuntimeError(f'the pose publisher did not start: {line.strip()!r}')
+        time.sleep(warmup)
+        proc.check_running()
+        before = process_sample(proc.pid)
+        time.sleep(window)
+        after = process_sample(proc.pid)
+        feeder.communicate(timeout=120.0)
+        return ResourceUse(name, rate, cpu_share(before, after), after.rss,
+                           after.rss - before.rss, after.wall - before.wall)
+    finally:
+        if feeder.poll() is None:
+            feeder.send_signal(signal.SIGINT)
+            try:
+                feeder.wait(10.0)
+            except subprocess.TimeoutExpired:
+                feeder.kill()
+                feeder.wait()
+        proc.stop()
+
+
 def _parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog='python -m corridor_pid.ros.loadgen',
@@ -170,6 +353,7 @@ def main(argv: Sequence[str] | None = None) -> int:
                 print(json.dumps({'error': f'no subscriber on {args.topic}'}), flush=True)
                 return 1
             time.sleep(0.01)
+        print(json.dumps({'started': True}), flush=True)
         start_s = time.time() if args.stamp_start is None else args.stamp_start
         start_ns = int(round(start_s * 1e9))
         step_ns = int(round(1e9 / args.rate))
