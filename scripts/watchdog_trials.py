@@ -7,8 +7,9 @@ Goal (issue 8): in 100 of 100 trials, with the other core(s) kept busy, the node
 ``stopped`` no later than ``watchdog.timeout`` + one watchdog period after its last
 accepted pose.
 
-Each trial feeds the running node poses at 100 Hz until it tracks, sends one last pose,
-then goes silent. Two delays are measured on the node's clock (= this computer's clock):
+Each trial feeds the running node poses at 100 Hz until it tracks, waits a random part of
+one watchdog period (so the last pose meets the node's timer at a random phase), sends one
+last pose, then goes silent. Two delays are measured on the node's clock (= this computer's clock):
 
 * from the node taking the last pose (its ``~/terms`` time) to the ``stopped`` status the
   node publishes at the moment of the state change (its header stamp) — the goal's figure;
@@ -27,6 +28,7 @@ import argparse
 import json
 import os
 from pathlib import Path
+import random
 import signal
 import statistics
 import subprocess
@@ -56,6 +58,7 @@ def main() -> int:
     parser.add_argument('--timeout', type=float, default=0.3, help='watchdog.timeout [s]')
     parser.add_argument('--busy', type=int, default=max(1, (os.cpu_count() or 2) - 1),
                         help='busy-loop processes (default: one per core but one)')
+    parser.add_argument('--seed', type=int, default=8, help='seed of the random phases')
     parser.add_argument('--json', action='store_true')
     args = parser.parse_args()
 
@@ -85,6 +88,7 @@ def main() -> int:
     proc = start_node(params, namespace=NS, log_dir=folder)
     burners = _burners(args.busy)
     node_delays: list[float] = []
+    rng = random.Random(args.seed)
     stamp_delays: list[float] = []
     try:
         with probe_node('watchdog_trials') as node:
@@ -121,6 +125,9 @@ def main() -> int:
                     if time.monotonic() > deadline:
                         raise TimeoutError('the node never tracked')
                 diag.clear()
+                # A random phase against the node's watchdog ticks: without it the trials
+                # (each one as long as the last) would all meet the ticks alike.
+                time.sleep(rng.uniform(0.0, period))
                 last = send()
                 wait_until(lambda: took(last) is not None,  # noqa: B023 - used at once
                            'the last pose taken', process=proc)

@@ -212,6 +212,13 @@ class OutputTimer:
             self._sent[key] = time.perf_counter_ns()
         self.publisher.publish(msg)
 
+    def clear(self) -> None:
+        """Forget every pose sent and output received so far (e.g. after priming)."""
+        with self._lock:
+            self._sent.clear()
+            self._arrivals.clear()
+            self._stamps.clear()
+
     def pending(self) -> int:
         """Return the number of poses sent and not matched to an output yet."""
         with self._lock:
