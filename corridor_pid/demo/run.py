@@ -10,7 +10,8 @@
    (:mod:`corridor_pid.ros.isolation`); start the controller node and the simulated vehicle
    as separate processes, each in a session of its own, logs in ``<out>/logs``.
 3. Play the script through the demo's own node (:mod:`corridor_pid.ros.demo_driver`),
-   recording the topics into ``<out>/run`` (rosbag2, MCAP).
+   recording the topics into ``<out>/run`` (rosbag2, MCAP), each message at the time it
+   was sent on the run's clock (:mod:`corridor_pid.demo.logtimes`).
 4. Stop the processes (SIGINT, SIGTERM, SIGKILL), on success, failure and Ctrl-C alike.
 5. Write ``run.csv``, ``report.png`` and ``summary.json``; return the verdict.
 """
@@ -20,6 +21,7 @@ from __future__ import annotations
 from collections.abc import Callable, Iterator
 import contextlib
 import dataclasses
+import functools
 import math
 import os
 from pathlib import Path
@@ -305,8 +307,9 @@ def run_demo(options: DemoOptions, stream: TextIO | None = None) -> DemoOutcome:
     started = time.monotonic()
     flag: list[int] = []
     with _signals_as_flag(flag):
-        rows, terms, diagnostics, events, counts, domain = _run_processes(
-            scenario_path, out, params_file, duration, script, config, fast, flag, err)
+        rows, terms, diagnostics, events, counts, timing, domain = _run_processes(
+            scenario_path, out, params_file, duration, script, config, fast,
+            scenario.pose_delay, flag, err)
     wall = time.monotonic() - started
 
     origin = _origin(rows, scenario.pose_delay, fast)
@@ -338,7 +341,9 @@ def run_demo(options: DemoOptions, stream: TextIO | None = None) -> DemoOutcome:
                             'watchdog_timeout': config.watchdog.timeout},
              'script': {'retune_at': script.retune_at, 'unsafe_at': script.unsafe_at,
                         'blackout': [script.blackout_at, script.blackout_end]}},
-        messages=counts, lockstep=_lockstep(table), files=files)
+        messages=counts, lockstep=_lockstep(table), files=files,
+        recording={'log_times': 'sent (run clock)', 'timed_by_send_time': timing.by_send_time,
+                   'timed_by_receive_clock': timing.by_receive_clock})
     ok = bool(summary['verdict']['ok'])
     verdict = 'goals met' if ok else 'goals NOT met'
     write_run_csv(out / OUTPUT_NAMES['csv'], table)
@@ -352,8 +357,9 @@ def run_demo(options: DemoOptions, stream: TextIO | None = None) -> DemoOutcome:
 
 def _run_processes(scenario_path: str | os.PathLike[str], out: Path, params_file: Path,
                    duration: float, script: DemoScript, config: Config, fast: bool,
-                   flag: list[int], err: TextIO) -> tuple[Any, ...]:
+                   pose_delay: float, flag: list[int], err: TextIO) -> tuple[Any, ...]:
     """Start the processes, play the script, stop everything; return what was heard."""
+    from corridor_pid.demo.logtimes import log_times
     from corridor_pid.demo.recording import BagRecorder
     from corridor_pid.ros import isolation
     from corridor_pid.ros.demo_driver import DemoDriver, message_types, recorded_topics
@@ -376,7 +382,7 @@ def _run_processes(scenario_path: str | os.PathLike[str], out: Path, params_file
             sim_args += ['--hold', repr(t)]
     progress = Progress(duration, err)
     recorder = BagRecorder(out / OUTPUT_NAMES['bag'], message_types(recorded_topics(
-        'pose_stamped')))
+        'pose_stamped', fast)))
     context = Context()
     driver: Any = None
     events: list[Event] = []
@@ -411,10 +417,11 @@ def _run_processes(scenario_path: str | os.PathLike[str], out: Path, params_file
         codes = procs.stop_all()
         if driver is not None:
             driver.close()
-        recorder.close()
+        origin = _origin(driver.rows if driver is not None else [], pose_delay, fast)
+        recorder.close(functools.partial(log_times, origin_ns=round(origin * 1e9)))
         try_shutdown(context=context)
     bad = {name: code for name, code in codes.items() if code not in (0, -signal.SIGINT)}
     if bad:
         print(f'  note: exit codes {bad} (see {out / OUTPUT_NAMES["logs"]})', file=err)
     return (driver.rows, driver.terms, driver.diagnostics, events, dict(recorder.counts),
-            domain)
+            recorder.timing, domain)

@@ -16,6 +16,9 @@
   live and in the offline simulation of the same run without the retune;
 - ``run``: scenario, pace, duration, wall-clock seconds, ROS domain id, controller settings;
 - ``messages``: recorded message count per topic; ``lockstep``: poses answered in step;
+- ``recording``: how the bag's log times were set (``timed_by_send_time``: messages at
+  the time they were sent on the run's clock; ``timed_by_receive_clock``: the rest, at the
+  recorder's receive time; see :mod:`corridor_pid.demo.logtimes`);
 - ``files``: the output files, relative to the output folder.
 """
 
@@ -47,7 +50,8 @@ def _finite(value: Any) -> Any:
 def summary_object(*, goals: Mapping[str, Goal], metrics: Metrics, events: Sequence[Event],
                    retune_effect: Mapping[str, Any], run: Mapping[str, Any],
                    messages: Mapping[str, int], lockstep: Mapping[str, Any],
-                   files: Mapping[str, Any]) -> dict[str, Any]:
+                   files: Mapping[str, Any], recording: Mapping[str, Any] | None = None
+                   ) -> dict[str, Any]:
     """Return the ``summary.json`` object (see the module docstring)."""
     summary: dict[str, Any] = _finite({
         'verdict': {
@@ -63,6 +67,7 @@ def summary_object(*, goals: Mapping[str, Goal], metrics: Metrics, events: Seque
         'run': dict(run),
         'messages': dict(messages),
         'lockstep': dict(lockstep),
+        'recording': dict(recording or {}),
         'files': dict(files),
     })
     return summary

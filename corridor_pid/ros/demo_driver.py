@@ -10,9 +10,10 @@ It talks to the two other processes only through their ROS interfaces:
 * the simulated vehicle (``/corridor_pid_sim``): ``~/resume`` (std_srvs/Trigger) and
   ``~/blackout`` (std_srvs/SetBool).
 
-It records :data:`RECORDED_TOPICS` as they come off the wire (raw subscriptions, CDR bytes
-into the bag) and reads from them what the report needs: the vehicle's state rows, the
-controller's terms and its state changes.
+It records :data:`RECORDED_TOPICS` (and ``/clock`` in the fast pace) as they come off the
+wire (raw subscriptions, CDR bytes handed to the recorder, which writes them at the end at
+the times they were sent: :mod:`corridor_pid.demo.logtimes`) and reads from them what the
+report needs: the vehicle's state rows, the controller's terms and its state changes.
 """
 
 from __future__ import annotations
@@ -27,7 +28,7 @@ from corridor_pid.demo.world import Phase, STATE_NAMES
 from diagnostic_msgs.msg import DiagnosticArray
 from geometry_msgs.msg import PoseStamped, TwistStamped
 from nav_msgs.msg import Odometry
-from rcl_interfaces.msg import ParameterValue
+from rcl_interfaces.msg import ParameterEvent, ParameterValue
 from rclpy.context import Context
 from rclpy.executors import SingleThreadedExecutor
 from rclpy.node import Node
@@ -36,6 +37,7 @@ from rclpy.parameter_client import AsyncParameterClient
 from rclpy.qos import QoSProfile, ReliabilityPolicy
 from rclpy.serialization import deserialize_message
 from rclpy.task import Future
+from rosgraph_msgs.msg import Clock
 from std_msgs.msg import Float64, Float64MultiArray
 from std_srvs.srv import SetBool, Trigger
 
@@ -60,14 +62,22 @@ RECORDED_TOPICS: dict[str, type] = {
     TERMS_TOPIC: Float64MultiArray,
     '/diagnostics': DiagnosticArray,
     STATE_TOPIC: Float64MultiArray,
+    '/parameter_events': ParameterEvent,
 }
-"""Topics the demo records, with their message classes (``/pose`` as sent by default)."""
+"""Topics the demo records, with their message classes (``/pose`` as sent by default).
+``/parameter_events`` carries the controller's accepted live changes (``replay
+--follow-recorded-sets`` applies them)."""
 
 
-def recorded_topics(pose_type: str) -> dict[str, type]:
-    """Return :data:`RECORDED_TOPICS` with the pose topic's class for ``pose_type``."""
+def recorded_topics(pose_type: str, fast: bool = False) -> dict[str, type]:
+    """Return :data:`RECORDED_TOPICS` with the pose topic's class for ``pose_type``.
+
+    The fast pace adds ``/clock`` (the simulated vehicle publishes it; none in real time).
+    """
     topics = dict(RECORDED_TOPICS)
     topics['/pose'] = Odometry if pose_type == 'odometry' else PoseStamped
+    if fast:
+        topics['/clock'] = Clock
     return topics
 
 
@@ -103,7 +113,7 @@ class DemoDriver(Node):
         self.on_row = on_row
         self.executor_ = SingleThreadedExecutor(context=context)
         self.executor_.add_node(self)
-        self.topics = recorded_topics(pose_type)
+        self.topics = recorded_topics(pose_type, use_sim_time)
         if recorder is not None:
             missing = set(self.topics) - set(recorder.counts)
             if missing:

@@ -205,6 +205,8 @@ EXPECTED_TOPICS = {
     '/corridor_pid/terms': 'std_msgs/msg/Float64MultiArray',
     '/diagnostics': 'diagnostic_msgs/msg/DiagnosticArray',
     '/corridor_pid_sim/state': 'std_msgs/msg/Float64MultiArray',
+    '/parameter_events': 'rcl_interfaces/msg/ParameterEvent',
+    '/clock': 'rosgraph_msgs/msg/Clock',
 }
 
 
@@ -238,6 +240,85 @@ def test_recording_is_a_rosbag2_mcap_with_counts_consistent_with_the_rate(run: R
     assert np.all(gaps > 0)
     assert np.isclose(gaps.max(), outage[1] - outage[0] + 1.0 / RATE, atol=1e-6)
     assert np.allclose(np.sort(gaps)[:-1], 1.0 / RATE, atol=1e-6)
+
+
+def test_bag_times_are_when_the_messages_were_sent(run: Run) -> None:
+    """Every /pose at its stamp + pose_delay; commands at the node time they carry.
+
+    The bag's log time of a pose is when the controller took it: in the lock-step fast
+    pace, pose_delay after it was measured. Every message is timed from the run, none by
+    the recorder's own (lagging) clock.
+    """
+    from rosbags.rosbag2 import Reader
+    from rosbags.typesys import get_typestore, Stores
+
+    store = get_typestore(Stores.ROS2_JAZZY)
+    late: list[float] = []
+    commands: list[float] = []
+    with Reader(run.out / 'run') as reader:
+        wanted = [c for c in reader.connections if c.topic in ('/pose', '/cmd_vel')]
+        for conn, ns, raw in reader.messages(wanted):
+            msg = store.deserialize_cdr(raw, conn.msgtype)
+            sent = msg.header.stamp.sec * 1_000_000_000 + msg.header.stamp.nanosec
+            (late if conn.topic == '/pose' else commands).append((ns - sent) * 1e-9)
+    assert len(late) == run.summary['messages']['/pose']
+    np.testing.assert_allclose(late, DELAY, atol=1e-3)
+    assert np.all(np.asarray(commands) == 0.0)
+    assert run.summary['recording']['timed_by_receive_clock'] == 0
+
+
+def _replay(run: Run, *extra: str) -> dict[str, Any]:
+    """Return ``corridor-pid replay --json`` of the demo's bag with its params file."""
+    done = subprocess.run(
+        [sys.executable, '-m', 'corridor_pid', 'replay', str(run.out / 'run'), '--params',
+         str(run.out / 'params.yaml'), '--corridor-width', '2.4', '--json', *extra],
+        cwd=REPO, capture_output=True, text=True, timeout=300, check=False)
+    assert done.returncode == 0, done.stderr
+    scores: dict[str, Any] = json.loads(done.stdout)
+    return scores
+
+
+def _recorded_minus_replayed(run: Run, *extra: str) -> tuple[np.ndarray, np.ndarray]:
+    """Return (time [s], recorded minus replayed steering [rad]) of every steering message.
+
+    The replay writes its commands into a copy of the bag (``--write``) at the step times;
+    each recorded steering_angle is paired with the replayed command in force at its time.
+    """
+    from rosbags.rosbag2 import Reader
+
+    written = run.out.parent / f"replayed{'-'.join(('', *extra))}"
+    if not written.exists():
+        _replay(run, '--write', str(written), *extra)
+    series: dict[str, tuple[list[int], list[float]]] = {
+        '/steering_angle': ([], []), '/replay/steering_angle': ([], [])}
+    with Reader(written) as reader:
+        wanted = [c for c in reader.connections if c.topic in series]
+        for conn, ns, raw in reader.messages(wanted):
+            series[conn.topic][0].append(ns)
+            series[conn.topic][1].append(struct.unpack('<d', raw[4:12])[0])
+    rec_t, rec_v = (np.asarray(v) for v in series['/steering_angle'])
+    rep_t, rep_v = (np.asarray(v) for v in series['/replay/steering_angle'])
+    index = np.searchsorted(rep_t, rec_t, side='right') - 1
+    assert index.min() >= 0
+    return rec_t * 1e-9, rec_v - rep_v[index]
+
+
+def test_replay_of_the_recording_agrees_until_the_live_retune(run: Run) -> None:
+    """The demo's params replay the recorded commands message for message until the retune.
+
+    ``replay`` (what THESE params command) steps the same core at the recorded times: up to
+    the live retune every recorded steering command is the replayed one (1e-6 rad), and
+    the run has the live run's single watchdog stop.
+    """
+    scores = _replay(run)
+    assert scores['watchdog_stops'] == 1 == run.summary['metrics']['watchdog_stops']
+    t, diff = _recorded_minus_replayed(run)
+    retune_at = run.summary['run']['script']['retune_at']
+    before = t < retune_at
+    assert before.sum() >= (retune_at - DELAY) * RATE - 1     # one command per pose
+    assert np.abs(diff[before]).max() < 1e-6
+    # After the live retune the params file is no longer what the node ran.
+    assert np.abs(diff[~before]).max() > 1e-3
 
 
 def test_replay_verb_reads_the_recording(run: Run) -> None:
