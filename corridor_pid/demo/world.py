@@ -17,9 +17,12 @@ from 0 to ``duration`` seconds of simulated time. On that timeline:
 - an *end* event at ``duration``.
 
 :meth:`SimWorld.next_event` advances the plant (:class:`corridor_pid.sim.plant.Plant`) to
-the next event and returns it; commands enter the plant with :meth:`SimWorld.command` at
-the plant's current time. A pose event at the same time as a hold comes after it; a sample
-taken at the same time as an arrival is taken first.
+the next event and returns it; commands enter the plant with :meth:`SimWorld.steer` and
+:meth:`SimWorld.drive` at the plant's current time. A pose event at the same time as a hold
+comes after it; a sample taken at the same time as an arrival is taken first. Taking a
+sample is an event of its own only on request (``next_event(samples=True)``): a caller
+that follows the wall clock (the real-time pace) must wait for it, or the next pose would
+go out when its sample is taken instead of ``pose_delay`` later.
 """
 
 from __future__ import annotations
@@ -62,6 +65,7 @@ class EventKind(enum.Enum):
 
     POSE = 'pose'
     HOLD = 'hold'
+    SAMPLE = 'sample'
     END = 'end'
 
 
@@ -81,7 +85,8 @@ class WorldEvent(NamedTuple):
     slot: int = -1
     sample: PoseSample | None = None
     """The sample arriving now, in the course frame with its stamp [s] on the sim clock;
-    None when it was lost (dropout or blackout)."""
+    None when it was lost (dropout or blackout). For a sample event: the sample taken
+    (None when lost)."""
 
 
 class SimWorld:
@@ -136,8 +141,14 @@ class SimWorld:
             candidates.append(self._holds[0])
         return min(candidates)
 
-    def next_event(self) -> WorldEvent:
-        """Advance the plant to the next event and return it (END again after the end)."""
+    def next_event(self, samples: bool = False) -> WorldEvent:
+        """Advance the plant to the next event and return it (END again after the end).
+
+        Args:
+            samples: also return the taking of a sample (a SAMPLE event); by default it
+                is done on the way to the next pose, hold or end event.
+
+        """
         sensor = self.sensor
         plant = self.plant
         while not self._ended:
@@ -164,6 +175,8 @@ class SimWorld:
                     sample = sensor.measure(k, plant.x, plant.y, plant.yaw)
                 self._in_flight.append((sensor.arrival(k), k, sample))
                 self._next_sample = k + 1
+                if samples:
+                    return WorldEvent(EventKind.SAMPLE, t_next, k, sample)
                 continue
             _, slot, arriving = self._in_flight.popleft()
             return WorldEvent(EventKind.POSE, t_next, slot, arriving)

@@ -326,7 +326,10 @@ def run(node: SimVehicleNode, executor: SingleThreadedExecutor,
                 if stop():
                     raise _StopRequestedError
                 executor.spin_once(timeout_sec=min(left, 0.05))
-        event = world.next_event()
+        # Real time: stop at each sample taken too, so the pose waits out its delay.
+        event = world.next_event(samples=not fast)
+        if event.kind is EventKind.SAMPLE:
+            continue
         node.publish_clock(event.time)
         if event.kind is EventKind.END:
             node.publish_state(phase=Phase.FINISHED)

@@ -79,6 +79,31 @@ def test_hold_comes_before_the_pose_of_the_same_instant() -> None:
     assert world.time == pytest.approx(0.2)
 
 
+def test_real_time_waits_for_each_sample_so_poses_keep_their_delay() -> None:
+    """With sample events, every pose is due (next_time) exactly when it arrives.
+
+    The real-time pace waits for next_time() and then takes the next event. Without the
+    sample events, a pose whose arrival float lies an ulp past the next sample time (0.14 +
+    0.02 vs 0.16) went out when that sample was taken, pose_delay early.
+    """
+    world = SimWorld(cart(), duration=6.0)
+    poses = samples = 0
+    while True:
+        due = world.next_time()
+        event = world.next_event(samples=True)
+        if event.kind is EventKind.END:
+            break
+        assert event.time == due
+        if event.kind is EventKind.SAMPLE:
+            samples += 1
+            assert event.time == event.slot / RATE
+        else:
+            poses += 1
+            assert event.sample is not None
+            assert event.time == pytest.approx(event.sample.stamp + DELAY, abs=1e-12)
+    assert poses == round((6.0 - DELAY) * RATE) + 1 and samples >= poses
+
+
 def test_blackout_loses_what_a_dropout_window_loses() -> None:
     """Blackout switched on at hold t0 and off at hold t1 = a scenario dropout [t0, t1)."""
     live = SimWorld(cart(), duration=2.0, holds=[1.0, 1.5])
