@@ -106,7 +106,7 @@ class Peer:
                  stamped: bool = True, frame: str = 'map', sim_time: bool = False) -> None:
         """Create the test node, recorders, publishers and clients; wait for discovery.
 
-        With ``sim_time`` the priming poses go with /clock at their stamps (the node's
+        With ``sim_time`` each priming pose is followed by /clock 0.1 s further (the node's
         clock stands still until /clock arrives).
         """
         self.proc = proc
@@ -152,9 +152,10 @@ class Peer:
 
         for k in itertools.count():
             stamp = PRIME_STAMP + k * 1e-3
-            if self.sim_time:
-                self.publish_clock(stamp)
             self.publish_pose(stamp, 0.0, 0.0)
+            if self.sim_time:
+                # Past a tick of any timer up to 10 Hz (control.rate may compute on one).
+                self.publish_clock(PRIME_STAMP + (k + 1) * 0.1)
             deadline = time.monotonic() + 1.0
             while time.monotonic() < deadline:
                 self.proc.check_running()
