@@ -22,10 +22,7 @@ message                                   log time
 the vehicle's ``~/state`` (labels with    its ``time`` field (simulated time) + ``origin``
 ``phase``)
 ``Float64`` (``steering_angle``,          the header stamp of the ``cmd_vel`` sent in the
-``target_speed``)                         same cycle: the k-th message of each topic (one
-                                          publisher, reliable QoS, one message per topic
-                                          per cycle); a ``target_speed`` must equal that
-                                          ``cmd_vel``'s ``linear.x``
+``target_speed``)                         same cycle (see below)
 pose (``PoseStamped``, ``Odometry``)      the controller's node time when it took the pose
                                           (the ``time`` of the first ``~/terms`` whose
                                           ``stamp`` is the pose's header stamp); for a pose
@@ -33,6 +30,17 @@ pose (``PoseStamped``, ``Odometry``)      the controller's node time when it too
                                           watchdog stop) the time the vehicle sent it (the
                                           ``~/state`` row whose ``pose_stamp`` it is)
 ========================================  ===============================================
+
+The controller sends ``steering_angle``, ``target_speed`` and ``cmd_vel`` once each per
+cycle, so the k-th message of each topic belong together. Under load a reliable writer with
+a short history can still lose a few messages to a slow subscriber, so the pairing checks
+the values and skips over a loss: a ``target_speed`` must equal its ``cmd_vel``'s
+``linear.x``, and a ``steering_angle`` must give its ``angular.z``
+(:func:`corridor_pid.core.ackermann.yaw_rate_from`, with the controller's wheelbase);
+after a mismatch the pairing resumes at the smallest skip (at most :data:`RESYNC_WINDOW`
+messages) after which a pair agrees again. Over a stretch of equal commands a loss cannot
+be told apart from its neighbours; those messages may be placed a cycle off, at a time
+when the same command was in force.
 
 A message none of these rules times keeps the recorder's receive time and is counted in
 :attr:`LogTimes.by_receive_clock`. At equal log times messages follow the cycle's causal
@@ -45,13 +53,15 @@ Decoding uses rosbags' Jazzy type store (the ``offline`` extra the recorder need
 from __future__ import annotations
 
 import bisect
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 import math
 from typing import Any, NamedTuple
 
+from corridor_pid.core.ackermann import yaw_rate_from
 from corridor_pid.replay.bag import CLOCK_TYPE, FLOAT64_TYPE, jazzy_typestore, POSE_KINDS
 
-__all__ = ['PARAMETER_EVENT_TYPE', 'RANKS', 'HeldMessage', 'LogTimes', 'log_times']
+__all__ = ['PARAMETER_EVENT_TYPE', 'RANKS', 'RESYNC_WINDOW', 'HeldMessage', 'LogTimes',
+           'aligned', 'log_times']
 
 PARAMETER_EVENT_TYPE = 'rcl_interfaces/msg/ParameterEvent'
 _STAMPED_COMMANDS = ('geometry_msgs/msg/TwistStamped',
@@ -64,6 +74,9 @@ RANKS: dict[str, int] = {
     'diagnostics': 6, 'state': 7, 'other': 8,
 }
 """Order of messages with equal log times, by kind (the order of one control cycle)."""
+
+RESYNC_WINDOW = 50
+"""Most messages skipped (of both topics together) to find the pairing again."""
 
 _POSE_MATCH = 1e-6
 """Largest difference [s] between a pose's header stamp and the ``stamp`` a ``~/terms`` or
@@ -112,12 +125,51 @@ def _nearest(keys: list[float], values: list[float], stamp: float) -> float | No
     return None
 
 
+def aligned(count: int, partners: int, agree: Callable[[int, int], bool]) -> list[int | None]:
+    """Return, for each of ``count`` messages, the index of its partner (None: none found).
+
+    Messages and partners are two in-order sequences of the same cycles, each with a few
+    cycles missing. ``agree(k, j)`` says whether message k can belong with partner j.
+    Pairs go in step while they agree; after a mismatch, the smallest skip (of messages,
+    partners, or both; at most :data:`RESYNC_WINDOW` in all) after which a pair agrees is
+    taken (a message with no such skip stays unpaired).
+    """
+    out: list[int | None] = [None] * count
+    k = j = 0
+    while k < count and j < partners:
+        if agree(k, j):
+            out[k] = j
+            k += 1
+            j += 1
+            continue
+        skip = _resync(k, j, count, partners, agree)
+        if skip is None:
+            k += 1
+        else:
+            k += skip[0]
+            j += skip[1]
+    return out
+
+
+def _resync(k: int, j: int, count: int, partners: int, agree: Callable[[int, int], bool]
+            ) -> tuple[int, int] | None:
+    """Return the smallest (messages, partners) skip after which the pairs agree again."""
+    for total in range(1, RESYNC_WINDOW + 1):
+        for a in range(total + 1):
+            b = total - a
+            if k + a < count and j + b < partners and agree(k + a, j + b):
+                return a, b
+    return None
+
+
 class _Timer:
     """Works out the log times of the held messages (see the module docstring)."""
 
-    def __init__(self, messages: Sequence[HeldMessage], origin_ns: int) -> None:
+    def __init__(self, messages: Sequence[HeldMessage], origin_ns: int,
+                 wheelbase: float | None) -> None:
         self.messages = messages
         self.origin_ns = origin_ns
+        self.wheelbase = wheelbase
         self.store = jazzy_typestore()
         n = len(messages)
         self.times: list[int | None] = [None] * n
@@ -126,8 +178,8 @@ class _Timer:
         """Pose stamp [s] -> node time [s] of the first cycle that took it."""
         self.slots: dict[float, float] = {}
         """Pose stamp [s] -> simulated time [s] of the slot that sent it."""
-        self.commands: list[tuple[int, float]] = []
-        """(stamp [ns], speed [m/s]) of each stamped command, in order."""
+        self.commands: list[tuple[int, float, float]] = []
+        """(stamp [ns], speed [m/s], yaw rate [rad/s]) of each stamped command, in order."""
         self.poses: list[tuple[int, float]] = []
         self.float64: dict[str, list[int]] = {}
 
@@ -149,9 +201,7 @@ class _Timer:
                 rank = 'command' if kind in _STAMPED_COMMANDS else 'diagnostics'
                 self.timed(i, _stamp_ns(msg.header.stamp), rank)
                 if kind in _STAMPED_COMMANDS:
-                    speed = (msg.twist.linear.x if hasattr(msg, 'twist')
-                             else msg.drive.speed)
-                    self.commands.append((_stamp_ns(msg.header.stamp), float(speed)))
+                    self.commands.append(_command(msg, self.wheelbase))
             elif kind == PARAMETER_EVENT_TYPE:
                 self.timed(i, _stamp_ns(msg.stamp), 'parameters')
             elif kind == _ARRAY_TYPE:
@@ -185,16 +235,14 @@ class _Timer:
                 self.answers.setdefault(stamp, row['time'])
 
     def commands_pass(self) -> None:
-        """Time the k-th Float64 command of each topic by the k-th stamped command."""
+        """Time each Float64 command by the stamped command of its cycle."""
+        commands = self.commands
         for topic, indices in self.float64.items():
-            speed_topic = topic.rstrip('/').rpartition('/')[2] == 'target_speed'
-            for k, i in enumerate(indices):
-                if k >= len(self.commands):
-                    break
-                ns, speed = self.commands[k]
-                if speed_topic and self.decode(self.messages[i]).data != speed:
-                    break  # out of step from here on: leave the rest to the receive clock
-                self.times[i] = ns
+            values = [float(self.decode(self.messages[i]).data) for i in indices]
+            agree = _agreement(topic, values, commands, self.wheelbase)
+            for i, j in zip(indices, aligned(len(values), len(commands), agree)):
+                if j is not None:
+                    self.times[i] = commands[j][0]
 
     def poses_pass(self) -> None:
         """Time each pose by the cycle that took it, else by the slot that sent it."""
@@ -218,16 +266,48 @@ class _Timer:
         return LogTimes(times, self.ranks, timed, len(times) - timed)
 
 
-def log_times(messages: Sequence[HeldMessage], origin_ns: int = 0) -> LogTimes:
+def _agreement(topic: str, values: list[float], commands: list[tuple[int, float, float]],
+               wheelbase: float | None) -> Callable[[int, int], bool]:
+    """Return whether value k of a Float64 command topic can be stamped command j's."""
+    name = topic.rstrip('/').rpartition('/')[2]
+
+    def same_speed(k: int, j: int) -> bool:
+        return values[k] == commands[j][1]
+
+    def same_yaw_rate(k: int, j: int) -> bool:
+        assert wheelbase is not None
+        return yaw_rate_from(values[k], commands[j][1], wheelbase) == commands[j][2]
+
+    if name == 'target_speed':
+        return same_speed
+    if name == 'steering_angle' and wheelbase is not None:
+        return same_yaw_rate
+    return lambda k, j: True
+
+
+def _command(msg: Any, wheelbase: float | None) -> tuple[int, float, float]:
+    """Return (stamp [ns], speed [m/s], yaw rate [rad/s]) of a stamped command."""
+    stamp = _stamp_ns(msg.header.stamp)
+    if hasattr(msg, 'twist'):
+        return stamp, float(msg.twist.linear.x), float(msg.twist.angular.z)
+    speed = float(msg.drive.speed)
+    angle = float(msg.drive.steering_angle)
+    return stamp, speed, yaw_rate_from(angle, speed, wheelbase) if wheelbase else math.nan
+
+
+def log_times(messages: Sequence[HeldMessage], origin_ns: int = 0,
+              wheelbase: float | None = None) -> LogTimes:
     """Return the log time of every message (see the module docstring).
 
     Args:
         messages: the recorded messages in the order they were heard.
         origin_ns: ROS time [ns] of simulated time 0 (0 in the fast pace): turns the
             simulated vehicle's ``time`` fields into ROS time.
+        wheelbase: the controller's ``vehicle.wheelbase`` [m], to check that a
+            ``steering_angle`` belongs with a ``cmd_vel``; None pairs them by order alone.
 
     """
-    timer = _Timer(messages, origin_ns)
+    timer = _Timer(messages, origin_ns, wheelbase)
     timer.first_pass()
     timer.commands_pass()
     timer.poses_pass()

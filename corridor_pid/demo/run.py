@@ -418,7 +418,8 @@ def _run_processes(scenario_path: str | os.PathLike[str], out: Path, params_file
         if driver is not None:
             driver.close()
         origin = _origin(driver.rows if driver is not None else [], pose_delay, fast)
-        recorder.close(functools.partial(log_times, origin_ns=round(origin * 1e9)))
+        recorder.close(functools.partial(log_times, origin_ns=round(origin * 1e9),
+                                         wheelbase=config.vehicle.wheelbase))
         try_shutdown(context=context)
     bad = {name: code for name, code in codes.items() if code not in (0, -signal.SIGINT)}
     if bad:

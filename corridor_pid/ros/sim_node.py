@@ -33,7 +33,11 @@ Pace (``--pace``):
   pose's stamp) followed by the ``steering_angle`` and ``target_speed`` values it lists.
   While the controller's ``/diagnostics`` say it is not tracking (stopped, finished,
   disabled), no answer is expected and the node only lets pending messages in for a moment
-  (``--idle-wait``), so a run stays fast while the watchdog holds the vehicle.
+  (``--idle-wait``), so a run stays fast while the watchdog holds the vehicle: after the
+  ``/clock`` of a slot (so a watchdog tick the controller's timer makes at that clock
+  value comes before the pose, the order the offline replay assumes) and after the pose.
+  Those waits are wall-clock ones: a controller that needs longer to handle a ``/clock``
+  may tick later, and that stretch of a run is then not exactly repeatable.
 
 Caution: a simulation, not a vehicle. It says nothing about a real vehicle's safety.
 """
@@ -113,14 +117,14 @@ class SimVehicleNode(Node):
         self.pose_type = pose_type
         self.idle_wait = idle_wait
         self.pose_readers = pose_readers
-        reliable = QoSProfile(  # type: ignore[no-untyped-call]
-            depth=10, reliability=ReliabilityPolicy.RELIABLE)
         deep = QoSProfile(  # type: ignore[no-untyped-call]
             depth=100, reliability=ReliabilityPolicy.RELIABLE)
+        # A deep history: a slow reliable reader (the demo's recorder under load) can
+        # still have a lost sample repaired.
         self._pose_pub = self.create_publisher(
-            Odometry if pose_type == 'odometry' else PoseStamped, 'pose', reliable)
+            Odometry if pose_type == 'odometry' else PoseStamped, 'pose', deep)
         self._state_pub = self.create_publisher(Float64MultiArray, '~/state', deep)
-        self._clock_pub = (self.create_publisher(Clock, '/clock', reliable)
+        self._clock_pub = (self.create_publisher(Clock, '/clock', deep)
                            if pace == 'fast' else None)
         self._state_layout = [MultiArrayDimension(
             label=','.join(STATE_NAMES), size=len(STATE_NAMES), stride=len(STATE_NAMES))]
@@ -350,10 +354,13 @@ def run(node: SimVehicleNode, executor: SingleThreadedExecutor,
             continue
         stamp_ns = node.ros_stamp_ns(sample.stamp)
         stamp = stamp_ns * 1e-9
+        expecting = node.controller_state in _TRACKING_STATES
+        if fast and not expecting:
+            # Let a timer tick of the controller at this clock value go first.
+            _spin_until(executor, lambda: False, node.idle_wait, stop)
         node.publish_pose(stamp_ns, sample.x, sample.y, sample.yaw, sample.frame_id)
         node_time = math.nan
         if fast:
-            expecting = node.controller_state in _TRACKING_STATES
             wait = ANSWER_WAIT if expecting else node.idle_wait
             found: list[tuple[float, float, float]] = []
 

@@ -12,7 +12,8 @@ from __future__ import annotations
 from pathlib import Path
 from typing import Any
 
-from corridor_pid.demo.logtimes import HeldMessage, log_times, RANKS
+from corridor_pid.core.ackermann import yaw_rate_from
+from corridor_pid.demo.logtimes import aligned, HeldMessage, log_times, RANKS
 from corridor_pid.demo.recording import BagRecorder
 from corridor_pid.demo.world import STATE_NAMES
 import numpy as np
@@ -134,18 +135,53 @@ def test_unanswered_pose_takes_the_slot_of_the_vehicle_in_real_time() -> None:
     assert times['/corridor_pid_sim/state'] == origin + 3_020_000_000
 
 
-def test_commands_out_of_step_fall_back_to_the_receive_clock() -> None:
-    """A target_speed that is not its cmd_vel's speed: it and the rest are not guessed."""
-    cycles = [_cycle(1_000_000_000 + k * 20_000_000, speed=0.5) for k in range(3)]
-    cycles[1] = [(topic, T['std_msgs/msg/Float64'](data=0.25)) if topic == '/target_speed'
-                 else (topic, msg) for topic, msg in cycles[1]]
-    held = _heard_late(cycles)
-    timing = log_times(held)
-    speeds = [(t, m.receive_ns) for m, t in zip(held, timing.times)
-              if m.topic == '/target_speed']
-    assert speeds[0][0] == 1_000_000_000
-    assert [t for t, _ in speeds[1:]] == [r for _, r in speeds[1:]]
+def _drop(held: list[HeldMessage], topic: str, index: int) -> list[HeldMessage]:
+    """Return ``held`` without the ``index``-th message of ``topic`` (lost on the way)."""
+    seen = [i for i, m in enumerate(held) if m.topic == topic]
+    return [m for i, m in enumerate(held) if i != seen[index]]
+
+
+def test_commands_lost_on_either_side_keep_their_cycles() -> None:
+    """A lost cmd_vel and a lost steering_angle: every other command keeps its cycle's time."""
+    wheelbase = 0.9
+    slots = [1_000_000_000 + k * 20_000_000 for k in range(12)]
+    cycles = []
+    for k, ns in enumerate(slots):
+        steer, speed = 0.02 * k - 0.1, 0.5 + 0.01 * k
+        cycle = _cycle(ns, speed=speed)
+        for n, (topic, msg) in enumerate(cycle):
+            if topic == '/steering_angle':
+                cycle[n] = (topic, T['std_msgs/msg/Float64'](data=steer))
+            elif topic == '/cmd_vel':
+                msg.twist.angular.z = yaw_rate_from(steer, speed, wheelbase)
+        cycles.append(cycle)
+    held = _drop(_drop(_drop(_heard_late(cycles), '/cmd_vel', 3), '/steering_angle', 7),
+                 '/target_speed', 0)
+    timing = log_times(held, wheelbase=wheelbase)
+    times: dict[str, list[int]] = {}
+    for msg, t in zip(held, timing.times):
+        times.setdefault(msg.topic, []).append(t)
+    lost_cmd = slots[3]
+    assert times['/cmd_vel'] == [ns for ns in slots if ns != lost_cmd]
+    # The steering and speed of the cycle whose cmd_vel was lost have no time to take.
+    assert times['/steering_angle'][:3] == slots[:3]
+    assert times['/steering_angle'][4:] == [ns for k, ns in enumerate(slots) if k > 3 and k != 7]
+    assert times['/target_speed'][3:] == slots[4:]
     assert timing.by_receive_clock == 2
+
+
+def test_alignment_skips_the_smallest_gap_that_agrees_again() -> None:
+    """Partners 2 and 5 lost, message 8 lost: every other message finds its own partner."""
+    cycles = list(range(20))
+    partners = [c for c in cycles if c not in (2, 5)]
+    messages = [c for c in cycles if c != 8]
+    pairs = aligned(len(messages), len(partners),
+                    lambda k, j: messages[k] == partners[j])
+    for k, j in enumerate(pairs):
+        if messages[k] in (2, 5):
+            assert j is None
+        else:
+            assert j is not None and partners[j] == messages[k]
 
 
 def test_recorder_writes_in_log_time_order_with_the_cycle_order_at_ties(
