@@ -69,7 +69,7 @@ class LatencyStats(NamedTuple):
     received: int
     p50: float
     p99: float
-    max: float
+    worst: float
     mean: float
 
     @property
@@ -109,7 +109,7 @@ class LatencyReport(NamedTuple):
         """Return the report as a JSON-ready dict (times in microseconds)."""
         def stats(s: LatencyStats) -> dict[str, object]:
             return {'sent': s.sent, 'received': s.received, 'drops': s.drops,
-                    'p50_us': s.p50 * 1e6, 'p99_us': s.p99 * 1e6, 'max_us': s.max * 1e6,
+                    'p50_us': s.p50 * 1e6, 'p99_us': s.p99 * 1e6, 'max_us': s.worst * 1e6,
                     'mean_us': s.mean * 1e6}
         return {'rate_hz': self.rate, 'relay': stats(self.relay), 'node': stats(self.node),
                 'relay_events': None if self.relay_events is None else stats(

@@ -332,7 +332,7 @@ class LiveRetune:
                 if mode == 'reject':
                     raise ConfigError(f"{', '.join(sorted(guarded))}: rejected by the "
                                       f'stability guard: {reason}')
-                self._warn(f"stability guard (tuning.guard: warn) for "
+                self._warn('stability guard (tuning.guard: warn) for '
                            f"{', '.join(sorted(guarded))}: {reason}")
         return new
 
