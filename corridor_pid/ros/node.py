@@ -18,7 +18,9 @@ Interface (all names relative, so remappable; see DESIGN §4):
 * srv ``~/enable`` (std_srvs/SetBool); the node starts disabled unless ``start_enabled``.
 
 Timing: a command is computed on each pose arrival (``control.rate: 0.0``) or on a timer at
-``control.rate``; ``t`` is always the node clock, so ``use_sim_time`` works. A watchdog
+``control.rate`` (each tick steps on the newest pose received since the last tick, or holds
+the last command when none came; a pose overtaken before a tick is neither used nor counted);
+``t`` is always the node clock, so ``use_sim_time`` works. A watchdog
 timer (period ``corridor_pid.core.timing.watchdog_period``) steps the controller without a
 pose, so a stale pose stream stops the vehicle within ``watchdog.timeout`` plus one period.
 While not tracking, that timer publishes the ramp-down (speed to 0 at ``speed.max_decel``
