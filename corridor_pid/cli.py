@@ -77,7 +77,10 @@ VERB_HELP: dict[str, tuple[str, str, str]] = {
         'Start the controller node and a simulated vehicle as separate processes on a '
         'private local DDS domain, retune a gain live, try an unsafe change, interrupt the '
         'pose stream past the watchdog timeout, and write a report (summary.json, run.csv, '
-        'report.png, run.mcap) to --out. The exit code says whether the run met its goals.',
+        'report.png, the bag folder run/ holding run.mcap, params.yaml) to --out. Replay '
+        'the bag with `corridor-pid replay OUT/run --params OUT/params.yaml` (add '
+        '--follow-recorded-sets to include the live retune). The exit code says whether '
+        'the run met its goals.',
         '  corridor-pid demo\n'
         '  corridor-pid demo --fast --out /tmp/demo\n'
         '  corridor-pid demo --scenario config/scenarios/FILE.yaml --duration 30 --realtime'),
@@ -93,9 +96,14 @@ VERB_HELP: dict[str, tuple[str, str, str]] = {
     'replay': (
         'score a recorded rosbag2 run through the controller core',
         'Read the pose topic of a rosbag2 bag (a directory; sqlite3 or MCAP), drive the '
-        'controller core at the recorded stamps (enabled from the first pose), print the '
-        'metrics of the recorded path, and compare with the commands the bag holds.',
+        'controller core at the recorded stamps (enabled from the first pose; watchdog '
+        'ticks on the recorded /clock when the bag holds one), print the metrics of the '
+        'recorded path, and compare with the commands the bag holds. By default the params '
+        'file alone sets the controller: what THESE params would have commanded. '
+        '--follow-recorded-sets also applies the live parameter changes the bag recorded.',
         '  corridor-pid replay run1/\n'
+        '  corridor-pid replay out/demo/run --params out/demo/params.yaml '
+        '--follow-recorded-sets\n'
         '  corridor-pid replay run1/ --params tuned.yaml --pose-topic /odom --json\n'
         '  corridor-pid replay run1/ --corridor-width 2.4 --write run1_replayed/ --plot r.png'),
     'tune': (
@@ -191,7 +199,8 @@ def build_parser() -> argparse.ArgumentParser:
         help='scenario file to run (default: the shipped hospital-corridor delivery cart)')
     demo.add_argument(
         '--out', metavar='DIR', default='out/demo',
-        help='folder for summary.json, run.csv, report.png, run.mcap (default: %(default)s)')
+        help='folder for summary.json, run.csv, report.png, the bag folder run/ (rosbag2: '
+             'run/run.mcap) and params.yaml (default: %(default)s)')
     demo.add_argument(
         '--duration', metavar='S', type=_positive_float,
         help="length of the run [s] (default: the scenario's duration)")
@@ -233,6 +242,17 @@ def build_parser() -> argparse.ArgumentParser:
     replay.add_argument(
         '--corridor-width', metavar='W', type=_positive_float,
         help='corridor width [m], for the `diverged` metric (null without it)')
+    replay.add_argument(
+        '--follow-recorded-sets', action='store_true',
+        help="also apply the controller node's live parameter changes the bag recorded "
+             '(/parameter_events) at their times, through the same validation, so a run '
+             'retuned live replays to the commands it sent (default: these params only, '
+             'what they would have commanded)')
+    replay.add_argument(
+        '--controller-node', metavar='NODE',
+        help='with --follow-recorded-sets: the node whose changes to follow, e.g. '
+             '/cart/corridor_pid (default: the only node whose recorded changes are '
+             'controller parameters)')
     replay.add_argument(
         '--write', metavar='OUT',
         help='write a new bag: the original topics plus the replayed commands')

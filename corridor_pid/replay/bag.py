@@ -15,7 +15,7 @@ import functools
 from pathlib import Path
 import sqlite3
 import struct
-from typing import NamedTuple, TYPE_CHECKING
+from typing import Any, NamedTuple, TYPE_CHECKING
 
 from corridor_pid.core.errors import ReplayError
 
@@ -26,7 +26,8 @@ if TYPE_CHECKING:
 
 __all__ = [
     'CLOCK_TYPE', 'FLOAT64_TYPE', 'POSE_KINDS', 'POSE_TYPES', 'STORAGES', 'TWIST_STAMPED_TYPE',
-    'TWIST_TYPE', 'RawStream', 'bag_errors', 'command_connections', 'jazzy_typestore',
+    'TWIST_TYPE', 'RawStream', 'bag_errors', 'clock_connections', 'clock_values',
+    'command_connections', 'jazzy_typestore',
     'opened_bag', 'pose_connections', 'raw_streams', 'storage_of', 'topic_basename',
 ]
 
@@ -244,6 +245,41 @@ def command_connections(reader: Reader, pose_topic: str, name: str,
     else:
         return []
     return [c for c in reader.connections if c.topic == chosen and c.msgtype in msgtypes]
+
+
+def clock_connections(reader: Reader) -> list[Connection]:
+    """Return the connections of the bag's ROS clock (``/clock`` first; empty: none)."""
+    conns = [c for c in reader.connections if c.msgtype == CLOCK_TYPE]
+    if not conns:
+        return []
+    topic = '/clock' if any(c.topic == '/clock' for c in conns) else conns[0].topic
+    return [c for c in conns if c.topic == topic]
+
+
+def clock_values(stream: RawStream) -> list[int]:
+    """Return the ROS time [ns] each ``rosgraph_msgs/Clock`` message of ``stream`` carries.
+
+    Raises:
+        ReplayError: a message cannot be decoded.
+
+    """
+    from rosbags.serde import SerdeError
+
+    deserialize = jazzy_typestore().deserialize_cdr
+    values = []
+    for index, raw in enumerate(stream.data):
+        if len(raw) == 12 and raw[:4] == b'\x00\x01\x00\x00':   # little-endian CDR
+            sec, nanosec = struct.unpack_from('<iI', raw, 4)
+        else:
+            try:
+                msg: Any = deserialize(raw, stream.msgtype)
+            except (SerdeError, ValueError, IndexError, OverflowError, struct.error) as err:
+                reason = ' '.join(str(err).split()).rstrip('.')
+                raise ReplayError(f'{stream.topic!r}: message {index} cannot be decoded '
+                                  f'({reason})') from err
+            sec, nanosec = int(msg.clock.sec), int(msg.clock.nanosec)
+        values.append(sec * 1_000_000_000 + nanosec)
+    return values
 
 
 def raw_streams(reader: Reader, connections: Sequence[Connection]) -> dict[str, RawStream]:

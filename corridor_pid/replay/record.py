@@ -132,7 +132,8 @@ def _namespace(topic: str) -> str:
 def write_run_bag(path: str | Path, poses: Sequence[RecordedPose], *,
                   pose_kind: str = 'pose_stamped', storage: str = 'sqlite3',
                   pose_topic: str = '/pose', commands: Sequence[RecordedCommand] = (),
-                  cmd_vel: str | None = 'stamped', wheelbase: float = 0.9) -> dict[str, int]:
+                  cmd_vel: str | None = 'stamped', wheelbase: float = 0.9,
+                  others: Sequence[tuple[int, str, Any]] = ()) -> dict[str, int]:
     """Write a new bag with the poses and (optionally) the commands; return counts per topic.
 
     Args:
@@ -144,6 +145,8 @@ def write_run_bag(path: str | Path, poses: Sequence[RecordedPose], *,
         commands: commands sent, in receive order; none writes no command topics.
         cmd_vel: 'stamped' (TwistStamped), 'plain' (Twist) or None (no cmd_vel topic).
         wheelbase: for cmd_vel's yaw rate speed * tan(steering) / wheelbase (m).
+        others: more messages as (receive time [ns], topic, rosbags message), e.g.
+            ``/clock`` or ``/parameter_events``; the type is the message's.
 
     Raises:
         ReplayError: bad arguments, or the bag cannot be written.
@@ -194,6 +197,12 @@ def write_run_bag(path: str | Path, poses: Sequence[RecordedPose], *,
                 twist=twist)
             messages.append((cmd.receive_ns, order + 2, f'{space}/cmd_vel',
                              bytes(serialize(msg, twist_type))))
+    for k, (ns, topic, msg) in enumerate(others):
+        msgtype = msg.__msgtype__
+        if topics.setdefault(topic, msgtype) != msgtype:
+            raise ReplayError(f'others: topic {topic!r} has type {topics[topic]!r}, not '
+                              f'{msgtype!r}')
+        messages.append((ns, -len(others) + k, topic, bytes(serialize(msg, msgtype))))
     messages.sort(key=lambda m: (m[0], m[1]))
     counts = dict.fromkeys(topics, 0)
     try:

@@ -12,6 +12,7 @@ from corridor_pid.cli import main
 from corridor_pid.core.config import config_from_params
 from corridor_pid.core.paramsfile import write_params_file
 from corridor_pid.replay.record import write_run_bag
+import numpy as np
 import pytest
 
 sys.path.insert(0, str(Path(__file__).parents[1] / 'replay'))
@@ -82,6 +83,7 @@ def test_write_and_plot(bag: Path, tmp_path: Path,
     (['--pose-topic', '/odom'], "pose topic '/odom' is not in the bag; pose topics: /pose"),
     (['--pose-type', 'odometry'], "has type 'geometry_msgs/msg/PoseStamped', not"),
     (['--params', 'missing.yaml'], 'missing.yaml'),
+    (['--follow-recorded-sets'], '--follow-recorded-sets: the bag holds no /parameter_events'),
 ])
 def test_bad_input_is_one_line(bag: Path, extra: list[str], message: str,
                                capsys: pytest.CaptureFixture[str]) -> None:
@@ -130,3 +132,42 @@ def test_missing_rosbags_names_the_extra(bag: Path, monkeypatch: pytest.MonkeyPa
     err = capsys.readouterr().err
     assert err.count('\n') == 1
     assert "'rosbags' is not installed" in err and 'corridor_pid[offline]' in err
+
+
+def test_follow_recorded_sets_prints_what_it_applied(tmp_path: Path,
+                                                     capsys: pytest.CaptureFixture[str]
+                                                     ) -> None:
+    """--follow-recorded-sets [NODE]: the sets applied in the text and in the JSON."""
+    from rosbags.typesys import get_typestore, Stores
+
+    types = get_typestore(Stores.ROS2_JAZZY).types
+    run = recorded_run(config_from_params({}), duration=4.0)
+    at = run.poses[100].receive_ns
+    value = types['rcl_interfaces/msg/ParameterValue'](
+        type=3, bool_value=False, integer_value=0, double_value=1.1, string_value='',
+        byte_array_value=np.zeros(0, np.uint8), bool_array_value=np.zeros(0, bool),
+        integer_array_value=np.zeros(0, np.int64), double_array_value=np.zeros(0),
+        string_array_value=[])
+    event = types['rcl_interfaces/msg/ParameterEvent'](
+        stamp=types['builtin_interfaces/msg/Time'](sec=at // 10**9, nanosec=at % 10**9),
+        node='/cart/corridor_pid', new_parameters=[], deleted_parameters=[],
+        changed_parameters=[types['rcl_interfaces/msg/Parameter'](name='gains.kp',
+                                                                  value=value)])
+    bag = tmp_path / 'retuned'
+    write_run_bag(bag, run.poses, commands=run.commands,
+                  others=[(at, '/parameter_events', event)])
+    assert main(['replay', str(bag), '--follow-recorded-sets']) == 0
+    out = capsys.readouterr().out
+    assert 'followed 1 recorded parameter set(s) of /cart/corridor_pid:' in out
+    assert '2.000 s  gains.kp=1.1' in out
+    assert main(['replay', str(bag), '--follow-recorded-sets', '--controller-node',
+                 'cart/corridor_pid', '--json']) == 0
+    data = json.loads(capsys.readouterr().out)
+    assert data['recorded_sets'] == {'node': '/cart/corridor_pid', 'applied': [
+        {'time': pytest.approx(2.0), 'values': {'gains.kp': 1.1}}]}
+    assert data['ticks'] == 'period'
+    assert main(['replay', str(bag), '--json']) == 0
+    assert json.loads(capsys.readouterr().out)['recorded_sets'] is None
+    assert main(['replay', str(bag), '--controller-node', 'corridor_pid']) == 2
+    assert capsys.readouterr().err == (
+        'ERROR: --controller-node: only with --follow-recorded-sets\n')

@@ -1,6 +1,6 @@
 # SPDX-License-Identifier: Apache-2.0
 # Copyright 2026 corridor_pid contributors
-"""Driving the core through a track: commands do not depend on the watchdog tick phase."""
+"""Driving the core through a track: tick phase, ticks on a recorded /clock."""
 
 from __future__ import annotations
 
@@ -8,7 +8,7 @@ from pathlib import Path
 
 from corridor_pid.core.timing import watchdog_period
 from corridor_pid.replay.bag import opened_bag, pose_connections, raw_streams
-from corridor_pid.replay.drive import replayed_run
+from corridor_pid.replay.drive import clock_ticks, replayed_run
 from corridor_pid.replay.record import write_run_bag
 from corridor_pid.replay.track import pose_track, PoseTrack
 import numpy as np
@@ -78,3 +78,94 @@ def test_ticks_fill_the_gaps_only(tmp_path: Path) -> None:
     np.testing.assert_allclose(phase, np.round(phase), atol=1e-4)  # float time at 1.7e9 s
     assert np.all(np.diff(run.time) >= 0.0)
     assert run.pose_index[run.pose_index >= 0].tolist() == list(range(len(track)))
+
+
+CLOCK_PROBE = [
+    20_000_000, 40_000_000, 60_000_000, 80_000_000,      # steps of 20 ms: 75 ms -> 80 ms
+    150_000_000,                                         # exactly on a deadline
+    160_000_000, 700_000_000,                            # a jump over several deadlines
+    750_000_000, 750_000_000, 830_000_000, 1_500_000_000,  # repeat, then a jump onto one
+    1_510_000_000, 1_650_000_000,                        # a jump onto the deadline after
+    1_660_000_000, 1_800_000_000, 1_801_000_000,         # a jump two deadlines on
+]
+"""A /clock sequence [ns]: steps, values on deadlines, jumps over and onto deadlines."""
+
+
+def test_clock_ticks_are_where_an_rcl_timer_fires_on_ros_time() -> None:
+    """Ticks on a recorded clock = the firings of rcl's own timer driven by that ROS time.
+
+    Reference: ROS 2 Jazzy's rcl timer (rcl_timer_call, rcl_timer_is_ready in
+    rcl/src/rcl/timer.c) run through the installed rclpy: a 75 ms timer of a node on ROS
+    time, the clock set to each value in turn and the executor spun until nothing is
+    ready; each firing noted at the clock's now.
+    """
+    import rclpy
+    from rclpy.clock_type import ClockType
+    from rclpy.context import Context
+    from rclpy.executors import SingleThreadedExecutor
+    from rclpy.parameter import Parameter
+    from rclpy.time import Time
+
+    context = Context()
+    rclpy.init(context=context)
+    try:
+        node = rclpy.create_node(
+            'tick_probe', context=context, parameter_overrides=[
+                Parameter('use_sim_time', Parameter.Type.BOOL, True)])
+        clock = node.get_clock()
+        fired: list[int] = []
+        node.create_timer(0.075, lambda: fired.append(clock.now().nanoseconds))
+        executor = SingleThreadedExecutor(context=context)
+        executor.add_node(node)
+        for ns in CLOCK_PROBE:
+            clock.set_ros_time_override(Time(nanoseconds=ns, clock_type=ClockType.ROS_TIME))
+            before = -1
+            while before != len(fired):   # spin until no more firings at this clock
+                before = len(fired)
+                for _ in range(3):
+                    executor.spin_once(timeout_sec=0.0)
+        executor.shutdown()
+        node.destroy_node()
+    finally:
+        rclpy.try_shutdown(context=context)
+    assert fired == clock_ticks(CLOCK_PROBE, 75_000_000)
+    assert fired == [80_000_000, 150_000_000, 700_000_000, 750_000_000, 830_000_000,
+                     1_500_000_000, 1_650_000_000, 1_800_000_000]
+
+
+def test_recorded_clock_places_the_ticks_and_so_the_ramp(tmp_path: Path) -> None:
+    """A bag with /clock every 20 ms: the stop and every ramp step fall on clock values."""
+    from rosbags.typesys import get_typestore, Stores
+
+    store = get_typestore(Stores.ROS2_JAZZY)
+    recorded = recorded_run(CONFIG, duration=10.0, y0=0.6, gap=(4.0, 6.0))
+    clock_type = store.types['rosgraph_msgs/msg/Clock']
+    time_type = store.types['builtin_interfaces/msg/Time']
+    first, last = recorded.poses[0].receive_ns, recorded.poses[-1].receive_ns
+    # A simulator's clock: every 20 ms, 7 ms after each pose slot (so off the multiples).
+    values = list(range(first + 7_000_000, last, 20_000_000))
+    bag = tmp_path / 'clock'
+    write_run_bag(bag, recorded.poses, others=[
+        (ns, '/clock', clock_type(clock=time_type(sec=ns // 1_000_000_000,
+                                                  nanosec=ns % 1_000_000_000)))
+        for ns in values])
+    with opened_bag(bag) as reader:
+        stream = next(iter(raw_streams(reader, pose_connections(reader)).values()))
+    track = pose_track(stream)
+    from corridor_pid.replay.report import replay_bag
+
+    report = replay_bag(bag, CONFIG)
+    run = report.run
+    assert run.ticks == 'clock' and run.watchdog_stops == 1
+    tick_ns = np.rint(run.time[run.pose_index < 0] * 1e9).astype(np.int64)
+    expected = [ns for ns in clock_ticks(values, round(watchdog_period(CONFIG) * 1e9))
+                if first < ns <= last]
+    assert tick_ns.tolist() == expected
+    assert set(tick_ns.tolist()) <= set(values)
+    # The same poses without the clock: ticks on the multiples, so the ramp differs.
+    plain = replayed_run(track, CONFIG)
+    assert plain.ticks == 'period' and plain.watchdog_stops == 1
+    stopped = np.array([s == 'stopped' for s in run.state])
+    assert stopped.any()
+    assert not np.array_equal(run.time[stopped], plain.time[[s == 'stopped'
+                                                              for s in plain.state]])
