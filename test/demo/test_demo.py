@@ -321,6 +321,27 @@ def test_replay_of_the_recording_agrees_until_the_live_retune(run: Run) -> None:
     assert np.abs(diff[~before]).max() > 1e-3
 
 
+def test_following_the_recorded_sets_replays_the_whole_run(run: Run) -> None:
+    """With the live retune followed, every recorded command comes back (1e-6), outage too.
+
+    ``replay --follow-recorded-sets`` applies the node's recorded /parameter_events at their
+    times; the bag's /clock puts the replay's watchdog ticks where the node's timer fired,
+    so the stop and the ramp down during the outage agree as well.
+    """
+    scores = _replay(run, '--follow-recorded-sets')
+    retune = next(e for e in run.summary['events'] if e['kind'] == 'retune')
+    assert scores['recorded_sets'] == {'node': '/corridor_pid', 'applied': [
+        {'time': pytest.approx(retune['t'] - DELAY, abs=1e-9),
+         'values': {retune['name']: retune['value']}}]}
+    assert scores['ticks'] == 'clock'
+    assert scores['watchdog_stops'] == 1
+    for channel in ('steering', 'speed', 'yaw_rate'):
+        assert scores['comparison'][channel]['max_difference'] < 1e-6, channel
+    t, diff = _recorded_minus_replayed(run, '--follow-recorded-sets')
+    assert len(t) == run.summary['messages']['/steering_angle']
+    assert np.abs(diff).max() < 1e-6
+
+
 def test_replay_verb_reads_the_recording(run: Run) -> None:
     """``corridor-pid replay`` scores the demo's bag with its params file."""
     done = subprocess.run(
