@@ -17,14 +17,15 @@ message                                   log time
 ``TwistStamped`` (``cmd_vel``)            its header stamp (the controller's node time)
 ``DiagnosticArray``                       its header stamp
 ``ParameterEvent``                        its stamp (node time of the accepted set)
-``~/terms`` (Float64MultiArray with a     its ``time`` field (node time of the cycle)
-``time`` and no ``phase`` label)
+``~/terms`` (Float64MultiArray with a     its ``time`` field (node time of the cycle; to
+``time`` and no ``phase`` label)          the ns: the stamp of the cycle's ``cmd_vel``
+                                          when one is within 1 us)
 the vehicle's ``~/state`` (labels with    its ``time`` field (simulated time) + ``origin``
 ``phase``)
 ``Float64`` (``steering_angle``,          the header stamp of the ``cmd_vel`` sent in the
 ``target_speed``)                         same cycle (see below)
 pose (``PoseStamped``, ``Odometry``)      the controller's node time when it took the pose
-                                          (the ``time`` of the first ``~/terms`` whose
+                                          (the time of the first ``~/terms`` whose
                                           ``stamp`` is the pose's header stamp); for a pose
                                           it took without computing (recovery after a
                                           watchdog stop) the time the vehicle sent it (the
@@ -182,6 +183,9 @@ class _Timer:
         """(stamp [ns], speed [m/s], yaw rate [rad/s]) of each stamped command, in order."""
         self.poses: list[tuple[int, float]] = []
         self.float64: dict[str, list[int]] = {}
+        self.command_stamps: list[int] = []
+        self.cycle_times: list[int] = []
+        """Indices of the ``~/terms`` messages (timed from float seconds, then snapped)."""
 
     def decode(self, msg: HeldMessage) -> Any:
         return self.store.deserialize_cdr(msg.data, msg.msgtype)
@@ -230,6 +234,7 @@ class _Timer:
                 self.slots.setdefault(stamp, row['time'])
         else:
             self.timed(i, _ns(row['time']), 'terms')
+            self.cycle_times.append(i)
             stamp = row.get('stamp', math.nan)
             if math.isfinite(stamp):
                 self.answers.setdefault(stamp, row['time'])
@@ -253,11 +258,31 @@ class _Timer:
         for i, stamp in self.poses:
             node_time = _nearest(a_keys, a_values, stamp)
             if node_time is not None:
-                self.times[i] = _ns(node_time)
+                self.times[i] = self.snapped(_ns(node_time))
                 continue
             slot = _nearest(s_keys, s_values, stamp)
             if slot is not None:
                 self.times[i] = _ns(slot) + self.origin_ns
+
+    def snapped(self, ns: int) -> int:
+        """Return the stamped command's exact time [ns] when ``ns`` is within 1 us of one.
+
+        A node time sent as float seconds (``~/terms``) loses up to ~0.1 us at the size of
+        a ROS system time; its cycle's ``cmd_vel`` carries the same instant to the ns.
+        """
+        stamps = self.command_stamps
+        at = bisect.bisect_left(stamps, ns - 1_000)
+        if at < len(stamps) and abs(stamps[at] - ns) <= 1_000:
+            return stamps[at]
+        return ns
+
+    def snap_cycles(self) -> None:
+        """Snap the ``~/terms`` times to their cycle's command stamps."""
+        self.command_stamps = sorted(ns for ns, _, _ in self.commands)
+        for i in self.cycle_times:
+            ns = self.times[i]
+            if ns is not None:
+                self.times[i] = self.snapped(ns)
 
     def result(self) -> LogTimes:
         times = [t if t is not None else m.receive_ns
@@ -309,6 +334,7 @@ def log_times(messages: Sequence[HeldMessage], origin_ns: int = 0,
     """
     timer = _Timer(messages, origin_ns, wheelbase)
     timer.first_pass()
+    timer.snap_cycles()
     timer.commands_pass()
     timer.poses_pass()
     return timer.result()

@@ -141,6 +141,19 @@ def _drop(held: list[HeldMessage], topic: str, index: int) -> list[HeldMessage]:
     return [m for i, m in enumerate(held) if i != seen[index]]
 
 
+def test_real_time_node_times_are_exact_to_the_nanosecond() -> None:
+    """At ROS system-time sizes ~/terms' float seconds lose ~0.1 us; cmd_vel gives the ns."""
+    origin = 1_796_203_000_000_000_000
+    slot = origin + 3_020_000_000
+    node = slot + 987_654        # the controller took the pose ~1 ms after it was sent
+    held = _heard_late([_cycle(slot, node_ns=node, origin_ns=origin)])
+    timing = log_times(held, origin_ns=origin)
+    times = dict(zip((m.topic for m in held), timing.times))
+    assert times['/pose'] == times['/corridor_pid/terms'] == times['/cmd_vel'] == node
+    assert times['/corridor_pid_sim/state'] == slot
+    assert abs(round(node * 1e-9 * 1e9) - node) > 0     # the float alone is not exact
+
+
 def test_commands_lost_on_either_side_keep_their_cycles() -> None:
     """A lost cmd_vel and a lost steering_angle: every other command keeps its cycle's time."""
     wheelbase = 0.9
