@@ -105,7 +105,7 @@ def summary_text(summary: Mapping[str, Any], out: Path) -> str:
     for key, what in (('summary', 'metrics, events, verdict'),
                       ('csv', 'per pose slot: time, pose, errors, terms, commands, state'),
                       ('report', 'course, lateral error, steering, speed, events'),
-                      ('bag', 'rosbag2 (MCAP) of pose, commands, terms, diagnostics'),
+                      ('bag', 'rosbag2 (MCAP) recording, each message at its send time'),
                       ('params', "the controller's params file as run"),
                       ('logs', 'output of the controller and the simulated vehicle')):
         if key in files:
@@ -114,6 +114,10 @@ def summary_text(summary: Mapping[str, Any], out: Path) -> str:
             lines.append(f'  {shown:<28} {what}')
     run = summary['run']
     verdict = 'met its goals' if summary['verdict']['ok'] else 'did NOT meet its goals'
+    if 'bag' in files and 'params' in files:
+        lines += ['', 'replay the recording (add --follow-recorded-sets to include the live '
+                      'retune):',
+                  f"  corridor-pid replay {out / files['bag']} --params {out / files['params']}"]
     lines += ['', f"demo {verdict} ({run['pace']} pace, {run['duration']:g} s simulated in "
                   f"{run['wall_seconds']:.1f} s)"]
     return '\n'.join(lines)

@@ -64,3 +64,13 @@ def test_text_shows_metrics_with_units_events_and_files() -> None:
     assert '   4.00 s  retune gains.kp 0.8 -> 1.28: applied' in text
     assert 'logs/a.log, logs/b.log' in text and 'files in out/demo' in text
     assert 'demo met its goals (fast pace, 40 s simulated in 9.5 s)' in text
+
+
+def test_text_says_how_to_replay_the_recording() -> None:
+    """With a bag and a params file among the files: the replay command line for them."""
+    with_bag = summary()
+    with_bag['files'] = {'bag': 'run', 'params': 'params.yaml'}
+    text = summary_text(with_bag, Path('out/demo'))
+    assert 'corridor-pid replay out/demo/run --params out/demo/params.yaml' in text
+    assert '--follow-recorded-sets' in text
+    assert 'corridor-pid replay' not in summary_text(summary(), Path('out/demo'))
