@@ -294,7 +294,7 @@ def build_parser() -> argparse.ArgumentParser:
     bench = _add_verb(verbs, 'bench')
     _add_json(bench)
     bench.add_argument(
-        '--rate', metavar='HZ', type=_positive_float, default=1000.0,
+        '--rate', metavar='HZ', type=_positive_float, default=100.0,
         help='control rate [Hz] to judge the node latency against (default: %(default)s)')
     bench.add_argument(
         '--count', metavar='N', type=_positive_int, default=3000,
