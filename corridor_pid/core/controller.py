@@ -31,6 +31,7 @@ from corridor_pid.core.errors import ConfigError
 from corridor_pid.core.kinematics import arc_step
 from corridor_pid.core.pid import Integrator, RateFilter, scheduled_gains
 from corridor_pid.core.smoothing import AlphaBeta
+from corridor_pid.core.timing import watchdog_period
 
 __all__ = ['Controller', 'PoseSample', 'State', 'StepResult']
 
@@ -209,6 +210,10 @@ class Controller:
             self.state = state = State.STOPPED
             self.watchdog_stops += 1
             self._recovery = 0
+            # The stop ramp starts now: the first stop command steps down by at most one
+            # watchdog period of deceleration, not by the whole stale interval.
+            if h_out > plan.watchdog_period:
+                h_out = plan.watchdog_period
         if accepted:
             t_accept, self._t_accept = self._t_accept, t
             if state is State.WAITING:
@@ -423,7 +428,7 @@ class _Plan:
         'lookahead', 'target_offset', 'derivative_on_error', 'rate_from_odometry',
         'filter_time', 'integral', 'blend_time', 'feedforward', 'trim', 'cruise',
         'slowdown_error', 'lateral_wheelbase', 'max_angle', 'max_rate', 'max_accel',
-        'max_decel', 'max_speed', 'fixed_rate')
+        'max_decel', 'max_speed', 'fixed_rate', 'watchdog_period')
 
     def __init__(self, cfg: Config) -> None:
         """Copy the values out of the nested config."""
@@ -453,6 +458,7 @@ class _Plan:
         self.max_accel, self.max_decel = cfg.speed.max_accel, cfg.speed.max_decel
         self.max_speed = cfg.speed.max
         self.fixed_rate = cfg.control.rate > 0.0
+        self.watchdog_period = watchdog_period(cfg)
 
 
 _TRACKING = State.TRACKING

@@ -23,8 +23,10 @@ the last command when none came; a pose overtaken before a tick is neither used 
 ``t`` is always the node clock, so ``use_sim_time`` works. A watchdog
 timer (period ``corridor_pid.core.timing.watchdog_period``) steps the controller without a
 pose, so a stale pose stream stops the vehicle within ``watchdog.timeout`` plus one period.
-While not tracking, that timer publishes the ramp-down (speed to 0 at ``speed.max_decel``
-counted from the last command sent, steering back to trim within its rate limit). While
+While not tracking, that timer publishes the ramp-down (speed to 0 at ``speed.max_decel``,
+counted from the last command sent; a watchdog stop starts its ramp at the stop, so its first
+command steps down by one timer period of deceleration; steering back to trim within its
+rate limit). While
 ``stopped`` or ``finished`` it keeps publishing the resting command; while ``disabled`` or
 ``waiting`` it publishes until the command is at rest and then stays silent, so another
 driver may command the vehicle.
@@ -165,7 +167,8 @@ class CorridorPidNode(Node):
         self._set_output_constants(config)
 
         self._log = self.get_logger()  # type: ignore[no-untyped-call]
-        reliable = _reliable(10)
+        # Outputs keep 100 messages so a slow reliable reader (a recorder) loses none.
+        reliable = _reliable(100)
         self._steer_pub = self.create_publisher(Float64, 'steering_angle', reliable)
         self._speed_pub = self.create_publisher(Float64, 'target_speed', reliable)
         self._cmd_pub = self.create_publisher(

@@ -106,7 +106,7 @@ def test_states_enable_wait_track_disable() -> None:
 
 
 def test_watchdog_stop_ramp_and_recovery() -> None:
-    """No pose for the timeout -> stopped, speed ramps at max_decel, recovery after N poses."""
+    """No pose for the timeout -> stopped, speed ramps from then at max_decel, recovery."""
     cfg = config(watchdog__timeout=0.3, watchdog__recovery_count=3)
     ctl = _tracking(cfg)
     t = 0.0
@@ -118,11 +118,12 @@ def test_watchdog_stop_ramp_and_recovery() -> None:
     assert res.state == State.TRACKING
     res = ctl.step(None, t + 0.35)
     assert res.state == State.STOPPED and ctl.watchdog_stops == 1
-    # The ramp counts from the last command (the pose at t): the tick at t + 0.25 s sent
-    # nothing, so the stop does not depend on the phase of the timer ticks.
-    assert res.speed == pytest.approx(v0 - cfg.speed.max_decel * 0.35)
+    # The ramp starts at the stop: the first stop command steps down by one watchdog period
+    # (min(timeout/4, 1/diagnostics.rate) = 0.075 s) of deceleration, the next by the time
+    # since that command.
+    assert res.speed == pytest.approx(v0 - cfg.speed.max_decel * 0.075)
     res = ctl.step(None, t + 0.45)
-    assert res.speed == pytest.approx(v0 - cfg.speed.max_decel * 0.45)
+    assert res.speed == pytest.approx(v0 - cfg.speed.max_decel * (0.075 + 0.1))
     states = [ctl.step(PoseSample(t + 1 + 0.05 * k, 0.0, 0.0, 0.0), t + 1 + 0.05 * k).state
               for k in range(4)]
     assert states == [State.STOPPED, State.STOPPED, State.TRACKING, State.TRACKING]

@@ -59,7 +59,7 @@ def status_at(peer: Peer, clock: float) -> dict[str, str]:
 
 
 def test_watchdog_stops_within_timeout_plus_one_period_on_sim_time(peer: Peer) -> None:
-    """Stale poses: stopped exactly at the first watchdog tick past timeout; exact ramp."""
+    """Stale poses: stopped at the first watchdog tick past timeout; exact ramp from there."""
     # Poses at clock = stamp, 100 Hz for 1.2 s (the speed ramps up at max_accel 0.5).
     start = 10.005
     peer.publish_clock(start - 0.005)
@@ -91,12 +91,14 @@ def test_watchdog_stops_within_timeout_plus_one_period_on_sim_time(peer: Peer) -
     assert t_last + TIMEOUT < stop <= t_last + TIMEOUT + PERIOD + 1e-9
     assert stopped[0] - stop <= 1.0 / DIAG_RATE + 1e-9
     assert all(s == 'tracking' for c, s in states if c < stop)
-    # Ramp on sim time: from the last command, exactly max_decel per second down to 0.
+    # Ramp on sim time: the first stop command steps down by one watchdog period of
+    # max_decel (the ramp starts at the stop), then exactly max_decel per second down to 0.
     ramp = [(t_last, terms['speed'])] + [
         (seconds_of(c.header.stamp), c.twist.linear.x) for c in cmds
         if seconds_of(c.header.stamp) > t_last + 1e-6]
     assert ramp[1][0] == stop
-    for (t0, v0), (t1, v1) in zip(ramp, ramp[1:]):
+    assert ramp[0][1] - ramp[1][1] == pytest.approx(MAX_DECEL * PERIOD, abs=1e-6)
+    for (t0, v0), (t1, v1) in zip(ramp[1:], ramp[2:]):
         if v1 > 0.0:
             assert v0 - v1 == pytest.approx(MAX_DECEL * (t1 - t0), abs=1e-6)
         else:
