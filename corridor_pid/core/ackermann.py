@@ -19,6 +19,8 @@ from __future__ import annotations
 import math
 from typing import NamedTuple
 
+from corridor_pid.core.kinematics import yaw_rate
+
 __all__ = ['AckermannFields', 'ackermann_fields', 'yaw_rate_from']
 
 
@@ -55,7 +57,7 @@ def yaw_rate_from(steering: float, speed: float, wheelbase: float) -> float:
         ValueError: for a wheelbase that is not a positive finite length.
 
     """
-    return speed * math.tan(steering) / _checked_wheelbase(wheelbase)
+    return yaw_rate(speed, steering, _checked_wheelbase(wheelbase))
 
 
 def ackermann_fields(steering: float, speed: float, wheelbase: float) -> AckermannFields:
