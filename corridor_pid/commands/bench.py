@@ -148,17 +148,23 @@ def bench_text(result: dict[str, Any]) -> str:
     else:
         lines += [f"2. Pose -> steering_angle latency at {lat['rate_hz']:g} Hz "
                   f"({lat['node']['sent']} poses each; reliable QoS, local DDS)",
-                  '                          p50          p99          max   drops']
-        targets = [('bare rclpy relay ', 'relay'), ('relay, events exec', 'relay_events'),
+                  f"   {'':22}{'p50':>11}  {'p99':>11}  {'max':>11}  {'drops':>6}"]
+        targets = [('bare rclpy relay', 'relay'), ('relay, events executor', 'relay_events'),
                    ('corridor_pid node', 'node')]
         for label, key in targets:
             s = lat.get(key)
             if not s:
                 continue
-            lines.append(f"   {label}   {_ms(s['p50_us'])}  {_ms(s['p99_us'])}  "
+            lines.append(f"   {label:<22}{_ms(s['p50_us'])}  {_ms(s['p99_us'])}  "
                          f"{_ms(s['max_us'])}  {s['drops']:6d}")
-        lines += [f"   node / relay        {lat['p50_ratio']:9.2f}x   "
-                  f"{lat['p99_ratio']:9.2f}x", '']
+        lines.append(f"   {'node / relay':<22}{lat['p50_ratio']:10.2f}x  "
+                     f"{lat['p99_ratio']:10.2f}x")
+        events = lat.get('relay_events')
+        if events:
+            lines.append(f"   {'node / events relay':<22}"
+                         f"{lat['node']['p50_us'] / events['p50_us']:10.2f}x  "
+                         f"{lat['node']['p99_us'] / events['p99_us']:10.2f}x")
+        lines.append('')
     replay = result.get('replay')
     if replay is None:
         lines += [f"3. Replay rate: skipped ({result['skipped']['replay']})", '']
@@ -187,8 +193,9 @@ def bench_text(result: dict[str, Any]) -> str:
         for g in goals:
             sign = '<=' if g['at_most'] else '>='
             mark = 'ok  ' if g['ok'] else 'MISS'
-            lines.append(f"   {mark} {g['name']}: {_figure(g['value'])} {g['unit']} "
-                         f"(goal {sign} {_figure(g['limit'])} {g['unit']})".replace(' )', ')'))
+            unit = f" {g['unit']}" if g['unit'] else ''
+            lines.append(f"   {mark} {g['name']}: {_figure(g['value'])}{unit} "
+                         f"(goal {sign} {_figure(g['limit'])}{unit})")
         lines.append('')
     v = result['verdict']
     lines.append(f"Verdict at {result['rate_hz']:g} Hz (deadline {1e3 / result['rate_hz']:g} ms):"
