@@ -215,26 +215,27 @@ class Controller:
             if h_out > plan.watchdog_period:
                 h_out = plan.watchdog_period
         if accepted:
-            t_accept, self._t_accept = self._t_accept, t
-            if state is State.WAITING:
-                self.state = _TRACKING
-                self.reset()
-            elif state is State.STOPPED:
-                self._recovery += 1
-                if self._recovery >= plan.recovery_count:
-                    self.state = _TRACKING
-                    self.reset()
-            if self.state is _TRACKING:
+            if state is _TRACKING:
                 result = self._control(sample, t, h_out, plan)  # type: ignore[arg-type]
                 if result is not None:
+                    self._t_accept = t
                     return result
-                # Finite, but so large (or so close in time) that the law overflowed:
-                # reject the pose as a non-finite one, forget the history, keep the state.
-                self.state, self._t_accept, accepted = state, t_accept, False
-                self.rejected += 1
-                self.reset()
-                if state is State.STOPPED:
-                    self._recovery -= 1
+                accepted = self._overflowed(state)
+            else:
+                self._t_accept = t
+                if state is State.WAITING:
+                    self.state = _TRACKING
+                    self.reset()
+                elif state is State.STOPPED:
+                    self._recovery += 1
+                    if self._recovery >= plan.recovery_count:
+                        self.state = _TRACKING
+                        self.reset()
+                if self.state is _TRACKING:
+                    result = self._control(sample, t, h_out, plan)  # type: ignore[arg-type]
+                    if result is not None:
+                        return result
+                    accepted = self._overflowed(state)
         if state is _TRACKING and not plan.fixed_rate:
             # Computing on each pose, a timer tick (or a rejected pose) while tracking sends
             # no command, so the rate and slew limits keep counting from the last command
@@ -243,6 +244,20 @@ class Controller:
         return self._idle(h_out, plan, accepted)
 
     # -- internals ----------------------------------------------------------------------
+
+    def _overflowed(self, state: State) -> bool:
+        """Reject a pose that made the law overflow; return False (not accepted).
+
+        The pose was finite but so large (or so close in time) that the output was not:
+        it counts as rejected, the history is forgotten, the state stays ``state`` (it
+        neither refreshes the watchdog nor counts towards a recovery).
+        """
+        self.state = state
+        self.rejected += 1
+        self.reset()
+        if state is State.STOPPED:
+            self._recovery -= 1
+        return False
 
     def _accept(self, sample: PoseSample, plan: _Plan) -> bool:
         """Return whether ``sample`` is accepted; handle a large backwards stamp jump.
