@@ -19,6 +19,7 @@ from corridor_pid.core.config import config_from_params
 from corridor_pid.core.controller import Controller, PoseSample, State
 from hypothesis import given, HealthCheck, settings
 from hypothesis import strategies as st
+from test_properties import configs
 
 BIG = sys.float_info.max
 
@@ -27,17 +28,6 @@ absurd = st.one_of(
     st.sampled_from([BIG, -BIG, 1e308, -1e300, 1e200, 1e154, 5e-324]),
     st.floats(allow_nan=False, allow_infinity=False),
 )
-
-configs = st.fixed_dictionaries({
-    'gains.kp': st.floats(0.0, 20.0), 'gains.ki': st.floats(0.0, 5.0),
-    'gains.kd': st.floats(0.0, 5.0), 'lookahead': st.floats(0.0, 5.0),
-    'integral.method': st.sampled_from(['tracking', 'conditional', 'off']),
-    'derivative.filter_time': st.floats(0.0, 0.5),
-    'smoothing.enabled': st.booleans(), 'delay_compensation.enabled': st.booleans(),
-    'steering.max_angle': st.floats(0.05, 1.0), 'steering.max_rate': st.floats(0.1, 5.0),
-    'watchdog.timeout': st.floats(0.05, 1.0),
-    'course.points': st.sampled_from([(), (0.0, 0.0, 10.0, 0.0, 20.0, 8.0, 30.0, 0.0)]),
-})
 
 events = st.lists(st.tuples(
     st.floats(0.0, 0.4),                       # node-clock advance [s]
