@@ -45,7 +45,7 @@ from typing import Any, TYPE_CHECKING
 from corridor_pid.core.config import Config, default_config
 from corridor_pid.core.errors import CorridorPidError, MissingExtraError
 from corridor_pid.core.paramsfile import load_params_file
-from corridor_pid.sim.metrics import METRIC_UNITS
+from corridor_pid.sim.metrics import metric_text, METRIC_UNITS
 
 if TYPE_CHECKING:
     from corridor_pid.replay.report import ReplayReport
@@ -53,18 +53,6 @@ if TYPE_CHECKING:
 __all__ = ['run', 'summary_text']
 
 _UNITS = {'steering': 'rad', 'speed': 'm/s', 'yaw_rate': 'rad/s'}
-
-
-def _metric(value: float | int | bool | None, unit: str) -> str:
-    if value is None:
-        return 'n/a (no --corridor-width)'
-    if isinstance(value, bool):
-        return 'yes' if value else 'no'
-    if isinstance(value, int):
-        return str(value)
-    if unit == '':
-        return f'{100.0 * value:.1f} %'
-    return f'{value:.3f} {unit}'
 
 
 def _number(value: float | None, unit: str) -> str:
@@ -109,7 +97,8 @@ def summary_text(report: ReplayReport, params_file: str | None, config: Config) 
         f"{'metric':<34} value",
     ]
     for name, value in report.metrics.as_dict().items():
-        lines.append(f'{name:<34} {_metric(value, METRIC_UNITS[name])}')
+        text = metric_text(value, METRIC_UNITS[name], 'n/a (no --corridor-width)')
+        lines.append(f'{name:<34} {text}')
     lines.append('')
     if not report.comparison:
         lines.append('the bag holds no recorded commands (steering_angle, target_speed, '

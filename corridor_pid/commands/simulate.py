@@ -27,7 +27,7 @@ from corridor_pid.core.config import Config, default_config
 from corridor_pid.core.errors import CorridorPidError
 from corridor_pid.core.paramsfile import load_params_file
 from corridor_pid.sim.loop import SimResult, simulate
-from corridor_pid.sim.metrics import METRIC_UNITS
+from corridor_pid.sim.metrics import metric_text, METRIC_UNITS
 from corridor_pid.sim.scenario import load_scenario
 
 __all__ = ['run', 'summary_json', 'summary_text']
@@ -42,18 +42,6 @@ def summary_json(result: SimResult, params_file: str | None) -> dict[str, Any]:
         'duration': result.scenario.duration,
         'control_cycles': int(result.trace['computed'].sum()),
     }
-
-
-def _value(value: float | int | bool | None, unit: str) -> str:
-    if value is None:
-        return 'n/a (no corridor width)'
-    if isinstance(value, bool):
-        return 'yes' if value else 'no'
-    if isinstance(value, int):
-        return str(value)
-    if unit == '':
-        return f'{100.0 * value:.1f} %'
-    return f'{value:.3f} {unit}'
 
 
 def summary_text(result: SimResult, params_file: str | None) -> str:
@@ -76,7 +64,8 @@ def summary_text(result: SimResult, params_file: str | None) -> str:
         f"{'metric':<34} value",
     ]
     for name, value in result.metrics.as_dict().items():
-        lines.append(f'{name:<34} {_value(value, METRIC_UNITS[name])}')
+        text = metric_text(value, METRIC_UNITS[name], 'n/a (no corridor width)')
+        lines.append(f'{name:<34} {text}')
     return '\n'.join(lines)
 
 
