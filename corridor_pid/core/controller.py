@@ -30,7 +30,7 @@ from corridor_pid.core.course import Course
 from corridor_pid.core.errors import ConfigError
 from corridor_pid.core.kinematics import arc_step
 from corridor_pid.core.pid import Integrator, RateFilter, scheduled_gains
-from corridor_pid.core.smoothing import AlphaBeta
+from corridor_pid.core.smoothing import AlphaBetaPair
 from corridor_pid.core.timing import watchdog_period
 
 __all__ = ['Controller', 'PoseSample', 'State', 'StepResult']
@@ -113,8 +113,7 @@ class Controller:
         self.state = State.WAITING if enabled else State.DISABLED
         self._integrator = Integrator()
         self._rate = RateFilter()
-        self._smooth_y = AlphaBeta()
-        self._smooth_th = AlphaBeta()
+        self._smooth = AlphaBetaPair()
         self.rejected = 0
         self.watchdog_stops = 0
         self._last_stamp: float | None = None
@@ -127,10 +126,6 @@ class Controller:
         self._excess = 0.0
         self._prev_stamp: float | None = None
         self._last: StepResult | None = None
-        self._y = 0.0
-        self._th = 0.0
-        self._s = 0.0
-        self._kappa = 0.0
 
     # -- public API ---------------------------------------------------------------------
 
@@ -148,8 +143,7 @@ class Controller:
         """Forget the control history (integrator, filters, blend); keep counters."""
         self._integrator.value = 0.0
         self._rate.reset()
-        self._smooth_y.reset()
-        self._smooth_th.reset()
+        self._smooth.reset()
         self._blend = 0.0
         self._excess = 0.0
         self._prev_stamp = None
@@ -179,7 +173,9 @@ class Controller:
         if self._rate.primed:
             # Re-express the last differentiated signal under the new lookahead so the D
             # term sees no jump (a target_offset change still kicks with source 'error').
-            self._rate.last = self._measured(new, self._y, self._th, old.target_offset)
+            last = self._last
+            assert last is not None  # primed only by a computed step
+            self._rate.last = self._measured(new, last.lateral, last.heading, old.target_offset)
         if self._last is not None and self._prev_stamp is not None:
             before = self._unclamped(old)
             after = self._unclamped(new)
@@ -293,8 +289,10 @@ class Controller:
     def _unclamped(self, cfg: Config) -> float:
         """Return the unclamped output the last state gives under ``cfg`` [rad]."""
         kp, _, kd = scheduled_gains(cfg.gains, self._speed)
-        e = -((self._y - cfg.target_offset) + cfg.lookahead * math.sin(self._th))
-        ff = self._feedforward(cfg, self._s)
+        last = self._last
+        assert last is not None  # called only after a computed step
+        e = -((last.lateral - cfg.target_offset) + cfg.lookahead * math.sin(last.heading))
+        ff = self._feedforward(cfg, last.progress)
         return (cfg.steering.trim + ff + kp * e + self._integrator.value
                 + kd * self._rate.value + self._blend)
 
@@ -325,10 +323,7 @@ class Controller:
         course = self._course
         y, th, kappa, s, index = course.project(x, yy, yaw)
         if plan.smoothing:
-            a, b = plan.alpha, plan.beta
-            y = self._smooth_y.update(y, h, a, b)
-            th = self._smooth_th.update(th, h, a, b)
-        self._y, self._th, self._s, self._kappa = y, th, s, kappa
+            y, th = self._smooth.update(y, th, h, plan.alpha, plan.beta)
         if plan.scheduled:
             kp, ki, kd = scheduled_gains(
                 self._config.gains, self._speed if sample.speed is None else sample.speed)
@@ -396,7 +391,7 @@ class Controller:
         return StepResult(
             steer, speed, self.state, False, accepted,
             0.0 if last is None else last.error, 0.0, 0.0, self._integrator.value, 0.0, 0.0,
-            self._blend, trim, False, rate_sat, self._y, self._th, self._kappa, self._s,
+            self._blend, trim, False, rate_sat, *_where(last),
             kp, ki, kd, self.rejected, self.watchdog_stops)
 
     def _limited_steer(self, u: float, h: float, plan: _Plan) -> tuple[float, bool, bool]:
@@ -474,6 +469,13 @@ class _Plan:
         self.max_speed = cfg.speed.max
         self.fixed_rate = cfg.control.rate > 0.0
         self.watchdog_period = watchdog_period(cfg)
+
+
+def _where(last: StepResult | None) -> tuple[float, float, float, float]:
+    """Return (lateral, heading, curvature, progress) of the last computed step (or zeros)."""
+    if last is None:
+        return 0.0, 0.0, 0.0, 0.0
+    return last.lateral, last.heading, last.curvature, last.progress
 
 
 _TRACKING = State.TRACKING
