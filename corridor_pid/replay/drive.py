@@ -9,7 +9,7 @@ ticks ``Controller.step(None, t)``:
 
 - on the recorded ``/clock`` when the bag holds one (the node ran under ``use_sim_time``):
   a timer whose deadlines are the multiples of
-  :func:`~corridor_pid.core.timing.watchdog_period` fires at the first clock value at or
+  :func:`~corridor_pid.core.timing.watchdog_tick` fires at the first clock value at or
   after each deadline, at that clock value, as an rcl timer does on ROS time (a clock jump
   over several deadlines fires it once, and its next deadline stays on the multiples;
   :func:`clock_ticks`). At equal times the tick comes first: the clock that made it due
@@ -37,7 +37,7 @@ from typing import NamedTuple
 from corridor_pid.core.config import Config, config_from_params
 from corridor_pid.core.controller import Controller, PoseSample, StepResult
 from corridor_pid.core.errors import ConfigError, ReplayError
-from corridor_pid.core.timing import watchdog_period
+from corridor_pid.core.timing import watchdog_tick
 from corridor_pid.replay.sets import RecordedSet
 from corridor_pid.replay.track import PoseTrack
 import numpy as np
@@ -132,7 +132,7 @@ def replayed_run(track: PoseTrack, config: Config, tick_period: float | None = N
         track: the recorded poses.
         config: the controller configuration (course, gains, limits, ...) at the start.
         tick_period: timer period between poses (s); default the node's, see
-            :func:`~corridor_pid.core.timing.watchdog_period`.
+            :func:`~corridor_pid.core.timing.watchdog_tick`.
         clock_ns: the recorded ``/clock`` values (ns, bag order); None (or empty): ticks
             at the multiples of the period.
         sets: recorded parameter sets to apply at their times (bag order).
@@ -141,7 +141,7 @@ def replayed_run(track: PoseTrack, config: Config, tick_period: float | None = N
         ReplayError: a recorded set that the configuration in force refuses.
 
     """
-    period = watchdog_period(config) if tick_period is None else tick_period
+    period = watchdog_tick(config) if tick_period is None else tick_period
     controller = Controller(config, enabled=True)
     step = controller.step
     times: list[float] = track.time.tolist()

@@ -21,8 +21,9 @@ Timing: a command is computed on each pose arrival (``control.rate: 0.0``) or on
 ``control.rate`` (each tick steps on the newest pose received since the last tick, or holds
 the last command when none came; a pose overtaken before a tick is neither used nor counted);
 ``t`` is always the node clock, so ``use_sim_time`` works. A watchdog
-timer (period ``corridor_pid.core.timing.watchdog_period``) steps the controller without a
-pose, so a stale pose stream stops the vehicle within ``watchdog.timeout`` plus one period.
+timer (ticking twice per ``corridor_pid.core.timing.watchdog_period``) steps the controller
+without a pose, so a stale pose stream stops the vehicle within ``watchdog.timeout`` plus
+one period, with half a period of slack for a late timer.
 While not tracking, that timer publishes the ramp-down (speed to 0 at ``speed.max_decel``,
 counted from the last command sent; a watchdog stop starts its ramp at the stop, so its first
 command steps down by one timer period of deceleration; steering back to trim within its
@@ -59,7 +60,7 @@ from corridor_pid.core.config import Config
 from corridor_pid.core.controller import Controller, PoseSample, State, StepResult
 from corridor_pid.core.errors import ConfigError
 from corridor_pid.core.pid import scheduled_gains
-from corridor_pid.core.timing import watchdog_period
+from corridor_pid.core.timing import watchdog_tick
 from corridor_pid.ros.convert import (
     ackermann_class,
     ackermann_message,
@@ -193,7 +194,7 @@ class CorridorPidNode(Node):
         self._enable_srv = self.create_service(SetBool, '~/enable', self.enable_callback)
 
         self._fixed_rate = config.control.rate > 0.0
-        period = watchdog_period(config)
+        period = watchdog_tick(config)
         self._control_timer = None
         if self._fixed_rate:
             control_period = 1.0 / config.control.rate

@@ -8,7 +8,7 @@ Timeline of a run over ``[0, duration]``:
   dropout it reaches the controller ``pose_delay`` later, where ``Controller.step(sample,
   t_arrival)`` runs (with ``control.rate > 0`` the sample is kept instead, and a control
   timer steps on the latest one every ``1 / control.rate``), as the node does;
-- a watchdog timer ticks ``Controller.step(None, t)`` every :func:`watchdog_period`, as the
+- a watchdog timer ticks ``Controller.step(None, t)`` every :func:`watchdog_tick`, as the
   node's does (none in fixed-rate mode when the control timer is the faster);
 - every step's steering command enters the steering actuator's dead-time buffer
   (``vehicle.steer_delay`` of the scenario) and its speed command goes to the speed lag;
@@ -33,7 +33,7 @@ from corridor_pid.core.config import Config, config_from_params
 from corridor_pid.core.controller import Controller, PoseSample, StepResult
 from corridor_pid.core.course import Course
 from corridor_pid.core.errors import ConfigError
-from corridor_pid.core.timing import watchdog_period
+from corridor_pid.core.timing import watchdog_period, watchdog_tick
 from corridor_pid.sim.metrics import Metrics, metrics_from
 from corridor_pid.sim.plant import DEFAULT_MAX_STEP, Plant
 from corridor_pid.sim.scenario import Scenario
@@ -159,7 +159,7 @@ def simulate(scenario: Scenario, config: Config, max_step: float = DEFAULT_MAX_S
     inf = float('inf')
     fixed = cfg.control.rate > 0.0
     control_period = 1.0 / cfg.control.rate if fixed else inf
-    guard_period = watchdog_period(cfg)
+    guard_period = watchdog_tick(cfg)
     if fixed and control_period <= guard_period:
         guard_period = inf
     pending: PoseSample | None = None

@@ -6,7 +6,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from corridor_pid.core.timing import watchdog_period
+from corridor_pid.core.timing import watchdog_tick
 from corridor_pid.replay.bag import opened_bag, pose_connections, raw_streams
 from corridor_pid.replay.drive import clock_ticks, replayed_run
 from corridor_pid.replay.record import write_run_bag
@@ -73,7 +73,7 @@ def test_ticks_fill_the_gaps_only(tmp_path: Path) -> None:
     track = _track(tmp_path, (4.0, 6.0))
     run = replayed_run(track, CONFIG)
     ticks = run.time[run.pose_index < 0]
-    period = watchdog_period(CONFIG)
+    period = watchdog_tick(CONFIG)
     phase = ticks / period  # multiples of the period on the bag clock, as the node's timer
     np.testing.assert_allclose(phase, np.round(phase), atol=1e-4)  # float time at 1.7e9 s
     assert np.all(np.diff(run.time) >= 0.0)
@@ -158,7 +158,7 @@ def test_recorded_clock_places_the_ticks_and_so_the_ramp(tmp_path: Path) -> None
     run = report.run
     assert run.ticks == 'clock' and run.watchdog_stops == 1
     tick_ns = np.rint(run.time[run.pose_index < 0] * 1e9).astype(np.int64)
-    expected = [ns for ns in clock_ticks(values, round(watchdog_period(CONFIG) * 1e9))
+    expected = [ns for ns in clock_ticks(values, round(watchdog_tick(CONFIG) * 1e9))
                 if first < ns <= last]
     assert tick_ns.tolist() == expected
     assert set(tick_ns.tolist()) <= set(values)
