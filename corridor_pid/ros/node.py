@@ -52,7 +52,6 @@ import math
 import os
 import signal
 import sys
-from types import FrameType
 from typing import Any
 
 from builtin_interfaces.msg import Time as BuiltinTime
@@ -74,17 +73,15 @@ from corridor_pid.ros.parameters import (
     split_ros_args,
     startup_config,
 )
+from corridor_pid.ros.process import caught_signals, ros_context, RosStartError
 from diagnostic_msgs.msg import DiagnosticArray, DiagnosticStatus, KeyValue
 from geometry_msgs.msg import Twist, TwistStamped
-import rclpy
 from rclpy.context import Context
 from rclpy.duration import Duration
 from rclpy.executors import ExternalShutdownException, SingleThreadedExecutor
 from rclpy.node import Node
 from rclpy.qos import qos_profile_sensor_data, QoSProfile, ReliabilityPolicy
-from rclpy.signals import SignalHandlerOptions
 from rclpy.time import Time
-from rclpy.utilities import try_shutdown
 from std_msgs.msg import Float64, Float64MultiArray, MultiArrayDimension
 from std_srvs.srv import SetBool
 
@@ -504,26 +501,20 @@ def main(args: Sequence[str] | None = None) -> int:
         _error(str(err))
         return 1
 
-    signals: list[int] = []
-
-    def on_signal(signum: int, frame: FrameType | None) -> None:
-        signals.append(signum)
-
-    previous = {sig: signal.signal(sig, on_signal) for sig in (signal.SIGINT, signal.SIGTERM)}
-    context = Context()
-    node: CorridorPidNode | None = None
-    try:
+    with caught_signals() as signals:
         try:
-            rclpy.init(args=argv, context=context,
-                       signal_handler_options=SignalHandlerOptions.NO)
-        except Exception as err:  # noqa: BLE001 - rcl errors have no public type
-            _error(f'ROS could not start: {str(err).splitlines()[0]}')
-            return 1
-        try:
-            node = CorridorPidNode(context=context)
-        except ConfigError as err:
+            with ros_context(argv) as context:
+                return _spin(context, signals, expected)
+        except (RosStartError, ConfigError) as err:
             _error(str(err))
             return 1
+
+
+def _spin(context: Context, signals: list[int], expected: Config) -> int:
+    """Run the node until a signal or an external shutdown; send the final stop command."""
+    node: CorridorPidNode | None = None
+    try:
+        node = CorridorPidNode(context=context)
         node.warn_unapplied(expected)
         executor = _executor(context)
         executor.add_node(node)
@@ -541,9 +532,6 @@ def main(args: Sequence[str] | None = None) -> int:
     finally:
         if node is not None:
             node.destroy_node()  # type: ignore[no-untyped-call]
-        try_shutdown(context=context)
-        for sig, handler in previous.items():
-            signal.signal(sig, handler)
 
 
 if __name__ == '__main__':

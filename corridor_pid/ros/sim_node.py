@@ -47,28 +47,23 @@ from __future__ import annotations
 import argparse
 from collections.abc import Callable, Sequence
 import math
-import signal
 import sys
 import textwrap
 import time
-from types import FrameType
 from typing import Any
 
 from builtin_interfaces.msg import Time as TimeMsg
 from corridor_pid.core.errors import CorridorPidError, ScenarioError
 from corridor_pid.demo.world import EventKind, Phase, SimWorld, STATE_NAMES
+from corridor_pid.ros.process import caught_signals, ros_context, RosStartError
 from corridor_pid.sim.scenario import load_scenario
 from corridor_pid.sim.vehicle import yaw_rate
 from diagnostic_msgs.msg import DiagnosticArray
 from geometry_msgs.msg import PoseStamped
 from nav_msgs.msg import Odometry
-import rclpy
-from rclpy.context import Context
 from rclpy.executors import ExternalShutdownException, SingleThreadedExecutor
 from rclpy.node import Node
 from rclpy.qos import QoSProfile, ReliabilityPolicy
-from rclpy.signals import SignalHandlerOptions
-from rclpy.utilities import try_shutdown
 from rosgraph_msgs.msg import Clock
 from std_msgs.msg import Float64, Float64MultiArray, MultiArrayDimension
 from std_srvs.srv import SetBool, Trigger
@@ -467,37 +462,28 @@ def main(args: Sequence[str] | None = None) -> int:
         _error(str(err))
         return 1
 
-    signals: list[int] = []
-
-    def on_signal(signum: int, frame: FrameType | None) -> None:
-        signals.append(signum)
-
-    previous = {sig: signal.signal(sig, on_signal) for sig in (signal.SIGINT, signal.SIGTERM)}
-    context = Context()
-    try:
-        rclpy.init(args=['corridor_pid_sim', '--ros-args', *ros_args], context=context,
-                   signal_handler_options=SignalHandlerOptions.NO)
-    except Exception as err:  # noqa: BLE001 - rcl errors have no public type
-        _error(f'ROS could not start: {str(err).splitlines()[0]}')
-        return 1
-    node: SimVehicleNode | None = None
-    try:
-        node = SimVehicleNode(world, options.pace, options.pose_type, options.idle_wait,
-                              options.pose_readers, context=context)
-        executor = SingleThreadedExecutor(context=context)
-        executor.add_node(node)
+    with caught_signals() as signals:
         try:
-            run(node, executor, lambda: bool(signals) or not context.ok())
-        except (_StopRequestedError, ExternalShutdownException):
-            pass
-        executor.shutdown(timeout_sec=1.0)
-        return 0
-    finally:
-        if node is not None:
-            node.destroy_node()  # type: ignore[no-untyped-call]
-        try_shutdown(context=context)
-        for sig, handler in previous.items():
-            signal.signal(sig, handler)
+            with ros_context(['corridor_pid_sim', '--ros-args', *ros_args]) as context:
+                node: SimVehicleNode | None = None
+                try:
+                    node = SimVehicleNode(world, options.pace, options.pose_type,
+                                          options.idle_wait, options.pose_readers,
+                                          context=context)
+                    executor = SingleThreadedExecutor(context=context)
+                    executor.add_node(node)
+                    try:
+                        run(node, executor, lambda: bool(signals) or not context.ok())
+                    except (_StopRequestedError, ExternalShutdownException):
+                        pass
+                    executor.shutdown(timeout_sec=1.0)
+                    return 0
+                finally:
+                    if node is not None:
+                        node.destroy_node()  # type: ignore[no-untyped-call]
+        except RosStartError as err:
+            _error(str(err))
+            return 1
 
 
 if __name__ == '__main__':
