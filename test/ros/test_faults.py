@@ -268,11 +268,15 @@ def test_restarted_publisher_with_a_reset_clock_waits_then_tracks(
                    'the last pose of the new publisher', process=peer.proc)
         after = terms_in(peer, second['first_stamp'], second['last_stamp'])
         # The first pose that arrives resets (it is not accepted); the next one tracks at
-        # once, without recovery poses: computed cycles follow for every later stamp.
-        assert after[0]['stamp'] >= second['first_stamp'] + DT - 1e-6
+        # once, without the recovery poses a watchdog stop would ask for. (A node starved of
+        # CPU may skip poses its queue no longer holds, so the later cycles are checked for
+        # order and for ending at the last pose, not for one per stamp.)
+        assert second['first_stamp'] + DT - 1e-6 <= after[0]['stamp'] \
+            < second['first_stamp'] + (RECOVERY - 1) * DT - 1e-6
         assert after[0]['i'] == 0.0
-        assert [t['stamp'] for t in after] == pytest.approx(
-            [after[0]['stamp'] + k * DT for k in range(len(after))], abs=1e-6)
+        stamps = [t['stamp'] for t in after]
+        assert stamps == sorted(set(stamps))
+        assert stamps[-1] == pytest.approx(second['last_stamp'], abs=1e-6)
         seen = states_seen(peer)
         assert 'waiting' in seen and seen.index('waiting') < len(seen) - 1 - seen[::-1].index(
             'tracking')
