@@ -335,6 +335,10 @@ def _parser() -> argparse.ArgumentParser:
     parser.add_argument('--frame', default='map', help='frame id of the poses')
     parser.add_argument('--subscribers', type=int, default=1,
                         help='wait for this many matched subscriptions first')
+    parser.add_argument('--settle', type=float, default=0.0, metavar='SECONDS',
+                        help='then wait this long before the first pose: this side sees the '
+                        'match first, and poses sent before the subscriber has matched too '
+                        'are lost (default: 0)')
     return parser
 
 
@@ -360,6 +364,8 @@ def main(argv: Sequence[str] | None = None) -> int:
                 print(json.dumps({'error': f'no subscriber on {args.topic}'}), flush=True)
                 return 1
             time.sleep(0.01)
+        if args.settle > 0.0:
+            time.sleep(args.settle)
         print(json.dumps({'started': True}), flush=True)
         start_s = time.time() if args.stamp_start is None else args.stamp_start
         start_ns = int(round(start_s * 1e9))

@@ -196,10 +196,15 @@ WATCHDOG_VALUES = {'start_enabled': True, 'pose_qos': 'reliable', 'diagnostics.r
 
 
 def run_loadgen(topic: str, count: int, rate: float, stamp_start: float) -> dict[str, Any]:
-    """Publish ``count`` cart poses from a process of its own; return its report."""
+    """Publish ``count`` cart poses from a process of its own; return its report.
+
+    The publisher waits 0.5 s after it sees the node's subscription: the node's side of
+    discovery may complete later, and poses sent before it did are lost.
+    """
     out = subprocess.run(
         [sys.executable, '-m', 'corridor_pid.ros.loadgen', '--topic', topic,
-         '--rate', str(rate), '--count', str(count), '--stamp-start', repr(stamp_start)],
+         '--rate', str(rate), '--count', str(count), '--stamp-start', repr(stamp_start),
+         '--settle', '0.5'],
         env=node_env(), capture_output=True, text=True, timeout=600,
         start_new_session=True, check=False)
     assert out.returncode == 0, out.stdout + out.stderr
@@ -271,8 +276,8 @@ def test_restarted_publisher_with_a_reset_clock_waits_then_tracks(
         # once, without the recovery poses a watchdog stop would ask for. (A node starved of
         # CPU may skip poses its queue no longer holds, so the later cycles are checked for
         # order and for ending at the last pose, not for one per stamp.)
-        assert second['first_stamp'] + DT - 1e-6 <= after[0]['stamp'] \
-            < second['first_stamp'] + (RECOVERY - 1) * DT - 1e-6
+        offsets = [round((t['stamp'] - second['first_stamp']) / DT) for t in after]
+        assert 1 <= offsets[0] < RECOVERY - 1, offsets
         assert after[0]['i'] == 0.0
         stamps = [t['stamp'] for t in after]
         assert stamps == sorted(set(stamps))
