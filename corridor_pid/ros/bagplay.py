@@ -16,8 +16,10 @@ Two paces:
   node's ``get_parameters`` service and waits for the answer. The node's executor serves
   the service only after the pose that arrived before the request, so when the answer is
   in, the node has taken the pose at that clock; the next ``/clock`` cannot overtake it.
-  Between poses ``/clock`` also visits every multiple of ``clock_step`` (each taken
-  before the next), so the node's watchdog timer ticks where it would have. This pace is
+  Between poses ``/clock`` also visits every multiple of ``clock_step``, each taken,
+  with the timer callbacks it made due, before the next (three answered requests, see
+  ``_Player.settle_clock``), so the node's watchdog timer ticks where it would have
+  (choose a ``clock_step`` that divides the node's watchdog tick). This pace is
   deterministic: the node sees the clock, stamps and ticks the offline replay
   (``corridor-pid replay``) uses, so the commands agree with it message for message (see
   the tests).
@@ -74,6 +76,7 @@ _TIME = TERMS_FIELDS.index('time')
 _STEERING = TERMS_FIELDS.index('steering')
 _SPEED = TERMS_FIELDS.index('speed')
 _PRIME_STEP = 1.0  # s of /clock per priming attempt: at least one diagnostics period
+_CLOCK_HOPS = 3   # answered requests after a /clock until its timers have surely run
 
 
 class PlayedPose(NamedTuple):
@@ -225,6 +228,18 @@ class _Player:
         self.spin_until(future.done, f'{self.fqn} to answer get_parameters')
         self.drain()
 
+    def settle_clock(self) -> None:
+        """Return once the node has taken the last ``/clock`` and run the timers it made due.
+
+        On rclpy's events executor a timer made due by ``/clock`` runs two queued events
+        after the clock message (the clock-jump handling, then the timer dispatch); a
+        request sent after an answer is queued behind the next of them. So three answered
+        requests in a row: the timer has run before the third is served, and a pose sent
+        next cannot overtake it. (The single-threaded executor needs one.)
+        """
+        for _ in range(_CLOCK_HOPS):
+            self.sync()
+
     def publish_clock(self, ns: int) -> None:
         assert self.clock_pub is not None
         self.clock_pub.publish(Clock(clock=_time_msg(ns)))
@@ -322,7 +337,7 @@ def play_bag(bag: str | Path, *, namespace: str = '', node_name: str = NODE_NAME
         if sim_time:
             # Start the node's command history at the first pose's clock, as offline.
             player.publish_clock(receive[0])
-            player.sync()
+            player.settle_clock()
             player.pose_pub.publish(_rejected_pose(msg_class))
             primed += 1
             player.sync()
@@ -366,7 +381,7 @@ def _play(player: _Player, track: PoseTrack, raws: list[bytes], msg_class: Any,
             grid = (last_ns // step_ns + 1) * step_ns
             while grid < ns:
                 player.publish_clock(grid)
-                player.sync()
+                player.settle_clock()
                 grid += step_ns
             player.publish_clock(ns)
             last_ns = ns
