@@ -235,7 +235,7 @@ class _Player:
         after the clock message (the clock-jump handling, then the timer dispatch); a
         request sent after an answer is queued behind the next of them. So three answered
         requests in a row: the timer has run before the third is served, and a pose sent
-        next cannot overtake it. (The single-threaded executor needs one.)
+        next cannot overtake it.
         """
         for _ in range(_CLOCK_HOPS):
             self.sync()

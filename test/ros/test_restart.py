@@ -114,8 +114,9 @@ def test_killed_node_with_start_enabled_comes_back_waiting(
         assert (values['rejected_poses'], values['watchdog_stops']) == ('0', '0')
         peer = Peer(proc, NS)   # its priming pose (stamped 1 s) starts the tracking
         try:
-            # The ~/terms of that priming pose may leave before the node's side of the terms
-            # topic has matched this peer, so the checks use a pose sent once a status came.
+            # The node sends ~/terms only to a matched subscriber, and it may take that
+            # priming pose before it has matched this peer's: the checks use a pose sent
+            # once a status came.
             assert peer.wait_state('tracking')['state'] == 'tracking'
             # On the centreline the integral term holds only what came before it: nothing
             # carried over from the killed run (which left it non-zero).
